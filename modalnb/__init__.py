@@ -1,0 +1,33 @@
+"""modalnb: modal parameters from impact-hammer ring-down records.
+
+Headless core (never imports ipywidgets or plotly):
+
+* records: :func:`validate_records`, :func:`records_from_arrays`
+* errors: :class:`ModalnbError`, :class:`RecordError`, :class:`EstimationError`
+"""
+
+from __future__ import annotations
+
+from importlib.metadata import PackageNotFoundError, version
+
+from ._errors import EstimationError, ModalnbError, RecordError, RecordFileNotFoundError
+from .records import get_sample_rate, has_force, records_from_arrays, validate_records
+
+try:
+    __version__ = version("modalnb")
+except PackageNotFoundError:  # pragma: no cover - running from a source tree
+    __version__ = "0.0.0+unknown"
+
+__all__ = (
+    "__version__",
+    # records
+    "validate_records",
+    "records_from_arrays",
+    "get_sample_rate",
+    "has_force",
+    # errors
+    "ModalnbError",
+    "RecordError",
+    "RecordFileNotFoundError",
+    "EstimationError",
+)

@@ -1,0 +1,73 @@
+"""Small shared helpers: did-you-mean hints, optional imports, argument checks."""
+
+from __future__ import annotations
+
+import difflib
+import importlib
+from collections.abc import Iterable
+from types import ModuleType
+
+from ._errors import ModalnbError
+
+
+def did_you_mean(name: str, options: Iterable[str]) -> str:
+    """Return ``" Did you mean 'x'?"`` for the closest of `options`, or ``""``.
+
+    Examples
+    --------
+    >>> did_you_mean("forse", ["force", "response"])
+    " Did you mean 'force'?"
+    """
+    match = difflib.get_close_matches(str(name), [str(o) for o in options], n=1)
+    return f" Did you mean {match[0]!r}?" if match else ""
+
+
+def attempt_import(module: str, purpose: str) -> ModuleType:
+    """Import `module` or raise an ``ImportError`` that says what it is needed for.
+
+    Examples
+    --------
+    >>> attempt_import("json", "reading recipes").__name__
+    'json'
+    """
+    try:
+        return importlib.import_module(module)
+    except ImportError as exc:  # pragma: no cover - depends on the environment
+        raise ImportError(
+            f"The {module} package is required for {purpose}. Please install it "
+            f"(pip install {module})."
+        ) from exc
+
+
+def check_fraction(name: str, value: float, *, low: float = 0.0, high: float = 1.0) -> float:
+    """Return `value` as float if ``low < value <= high``, else raise ``ModalnbError``.
+
+    Examples
+    --------
+    >>> check_fraction("trigger", 0.1)
+    0.1
+    """
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise ModalnbError(f"`{name}` must be a number, was {value!r}.") from None
+    if not (low < v <= high):
+        raise ModalnbError(f"`{name}` must be in ({low}, {high}], was {value!r}.")
+    return v
+
+
+def check_positive(name: str, value: float) -> float:
+    """Return `value` as float if it is finite and > 0, else raise ``ModalnbError``.
+
+    Examples
+    --------
+    >>> check_positive("sample_rate", 2048)
+    2048.0
+    """
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise ModalnbError(f"`{name}` must be a positive number, was {value!r}.") from None
+    if not (v > 0 and v < float("inf")):
+        raise ModalnbError(f"`{name}` must be a positive finite number, was {value!r}.")
+    return v

@@ -1,0 +1,1 @@
+"""Estimation engine (headless)."""

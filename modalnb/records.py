@@ -1,0 +1,349 @@
+"""The record set: the one container every part of modalnb works on.
+
+A record set is an :class:`xarray.Dataset` with
+
+* ``response(hit, channel, time)`` float64, attr ``units`` (e.g. ``"m/s^2"``);
+* optional ``force(hit, time)`` float64, attr ``units`` (``"N"``);
+* coords ``time`` (s, uniformly spaced, may start below 0 for pre-trigger samples),
+  ``channel`` (str), ``hit`` (int labels); optional per-channel coords ``node``,
+  ``direction`` (e.g. ``"+Z"``), ``x``, ``y``, ``z`` (m), ``full_scale``; optional per-hit
+  coords ``excitation_node`` and ``excitation_direction``;
+* optional attrs ``sample_rate`` (Hz), ``exponential_window_tau_s`` (s),
+  ``full_scale`` and ``force_full_scale`` (ADC full scale in the variable's units).
+
+:func:`validate_records` checks a dataset against this layout and raises
+:class:`~modalnb.RecordError` with a one-line message when it does not fit; it never
+repairs anything silently.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import Any
+
+import numpy as np
+import xarray as xr
+
+from ._errors import RecordError
+from ._utils import did_you_mean
+
+__all__ = [
+    "DIMS",
+    "MIN_SAMPLES",
+    "validate_records",
+    "records_from_arrays",
+    "get_sample_rate",
+    "has_force",
+]
+
+#: Dimensions of the ``response`` variable, in order.
+DIMS = ("hit", "channel", "time")
+#: Fewest time samples a record set may have.
+MIN_SAMPLES = 16
+#: Relative tolerance on the time step (rounded CSV times are fine).
+TIME_STEP_RTOL = 0.01
+
+_PER_CHANNEL = ("node", "direction", "x", "y", "z", "full_scale")
+_PER_HIT = ("excitation_node", "excitation_direction")
+
+
+def _where(source: str | None) -> str:
+    return f"{source}: " if source else ""
+
+
+def _check_finite(values: np.ndarray, var: str, ds: xr.Dataset, source: str | None) -> None:
+    bad = ~np.isfinite(values)
+    if not bad.any():
+        return
+    idx = np.argwhere(bad)[0]
+    hit = ds["hit"].values[idx[0]]
+    where = f"hit {hit}"
+    if var == "response":
+        where += f", channel {ds['channel'].values[idx[1]]!r}"
+    t = float(ds["time"].values[idx[-1]])
+    kind = "NaN" if np.isnan(values[tuple(idx)]) else "Inf"
+    raise RecordError(
+        f"{_where(source)}variable {var!r} has {int(bad.sum())} non-finite sample(s); first "
+        f"is {kind} at {where}, time {t:.6g} s. Hint: fill or cut the gap, or reject that hit."
+    )
+
+
+def _check_numeric(da: xr.DataArray, var: str, source: str | None) -> None:
+    if not (np.issubdtype(da.dtype, np.floating) or np.issubdtype(da.dtype, np.integer)):
+        raise RecordError(
+            f"{_where(source)}variable {var!r} must hold real numbers, but its type is "
+            f"{da.dtype}. Hint: convert it to float64."
+        )
+
+
+def _time_step(time: np.ndarray, source: str | None) -> float:
+    if time.ndim != 1:
+        raise RecordError(f"{_where(source)}coordinate 'time' must be 1-D, has shape {time.shape}.")
+    if not np.issubdtype(time.dtype, np.number) or np.issubdtype(time.dtype, np.complexfloating):
+        raise RecordError(
+            f"{_where(source)}coordinate 'time' must be numbers in seconds, its type is "
+            f"{time.dtype}."
+        )
+    if time.size < MIN_SAMPLES:
+        raise RecordError(
+            f"{_where(source)}too few samples: {time.size} in 'time', at least {MIN_SAMPLES} "
+            "are needed."
+        )
+    t = time.astype(float)
+    if not np.all(np.isfinite(t)):
+        raise RecordError(f"{_where(source)}coordinate 'time' has NaN or Inf values.")
+    dt = np.diff(t)
+    if np.any(dt <= 0):
+        i = int(np.argmax(dt <= 0))
+        raise RecordError(
+            f"{_where(source)}coordinate 'time' must increase, but sample {i + 1} "
+            f"({t[i + 1]:.6g} s) does not follow sample {i} ({t[i]:.6g} s). "
+            "Hint: sort the samples or split the file."
+        )
+    step = float(np.median(dt))
+    off = np.abs(dt - step) > TIME_STEP_RTOL * step
+    if off.any():
+        i = int(np.argmax(off))
+        raise RecordError(
+            f"{_where(source)}coordinate 'time' is not uniformly spaced: step {dt[i]:.6g} s "
+            f"after sample {i} differs from the median step {step:.6g} s by more than "
+            f"{TIME_STEP_RTOL:.0%}. Hint: resample the record to a uniform rate."
+        )
+    return step
+
+
+def validate_records(ds: Any, *, source: str | None = None) -> xr.Dataset:
+    """Check that `ds` is a record set in modalnb's layout and return it unchanged.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        Candidate record set (layout in the module docstring).
+    source : str, optional
+        File name or other origin, put at the start of error messages.
+
+    Returns
+    -------
+    xarray.Dataset
+        `ds` itself (no copy, no repair).
+
+    Raises
+    ------
+    RecordError
+        With a one-line message naming the variable, channel or hit and what is wrong.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from modalnb import records_from_arrays, validate_records
+    >>> ds = records_from_arrays(np.zeros((2, 64)), sample_rate=1024.0)
+    >>> validate_records(ds) is ds
+    True
+    """
+    w = _where(source)
+    if not isinstance(ds, xr.Dataset):
+        raise RecordError(f"{w}expected an xarray.Dataset, got {type(ds).__name__}.")
+    if "response" not in ds.data_vars:
+        raise RecordError(
+            f"{w}no variable named 'response'. Variables present: {sorted(map(str, ds.data_vars))}."
+            f"{did_you_mean('response', map(str, ds.data_vars))} Hint: rename your response "
+            "variable to 'response' with dims (hit, channel, time)."
+        )
+    resp = ds["response"]
+    if tuple(resp.dims) != DIMS:
+        raise RecordError(
+            f"{w}variable 'response' has dims {tuple(map(str, resp.dims))}, expected {DIMS}. "
+            "Hint: use .transpose('hit', 'channel', 'time') or add the missing dims."
+        )
+    _check_numeric(resp, "response", source)
+    for dim in DIMS:
+        if dim not in ds.coords:
+            raise RecordError(f"{w}coordinate {dim!r} is missing. Hint: assign it with assign_coords.")
+    step = _time_step(np.asarray(ds["time"].values), source)
+    if resp.sizes["hit"] < 1 or resp.sizes["channel"] < 1:
+        raise RecordError(f"{w}variable 'response' is empty (sizes {dict(resp.sizes)}).")
+    ch = ds["channel"].values
+    if ch.dtype.kind not in "UO" or not all(isinstance(c, str) for c in ch.tolist()):
+        raise RecordError(f"{w}coordinate 'channel' must hold strings (channel names), has {ch.dtype}.")
+    if len(set(ch.tolist())) != ch.size:
+        dup = next(c for c in ch.tolist() if ch.tolist().count(c) > 1)
+        raise RecordError(f"{w}channel name {dup!r} appears more than once.")
+    hits = ds["hit"].values
+    if not np.issubdtype(hits.dtype, np.integer):
+        raise RecordError(f"{w}coordinate 'hit' must hold integer labels, has {hits.dtype}.")
+    if np.unique(hits).size != hits.size:
+        raise RecordError(f"{w}hit labels are not unique: {hits.tolist()}.")
+    if "force" in ds.data_vars:
+        f = ds["force"]
+        if tuple(f.dims) != ("hit", "time"):
+            raise RecordError(
+                f"{w}variable 'force' has dims {tuple(map(str, f.dims))}, expected ('hit', 'time')."
+            )
+        _check_numeric(f, "force", source)
+        _check_finite(np.asarray(f.values, dtype=float), "force", ds, source)
+    _check_finite(np.asarray(resp.values, dtype=float), "response", ds, source)
+    for name in _PER_CHANNEL:
+        if name in ds.coords and tuple(ds[name].dims) != ("channel",):
+            raise RecordError(f"{w}coordinate {name!r} must be per channel (dim 'channel').")
+    for name in _PER_HIT:
+        if name in ds.coords and tuple(ds[name].dims) != ("hit",):
+            raise RecordError(f"{w}coordinate {name!r} must be per hit (dim 'hit').")
+    if "sample_rate" in ds.attrs:
+        fs = _positive_attr(ds, "sample_rate", source)
+        if abs(fs * step - 1.0) > TIME_STEP_RTOL:
+            raise RecordError(
+                f"{w}attribute sample_rate={fs:g} Hz disagrees with the time step "
+                f"{step:.6g} s ({1 / step:.6g} Hz). Hint: fix or drop the attribute."
+            )
+    for name in ("exponential_window_tau_s", "full_scale", "force_full_scale"):
+        if name in ds.attrs:
+            _positive_attr(ds, name, source)
+    if "full_scale" in ds.coords and np.any(~(np.asarray(ds["full_scale"].values, float) > 0)):
+        raise RecordError(f"{w}coordinate 'full_scale' must be positive on every channel.")
+    return ds
+
+
+def _positive_attr(ds: xr.Dataset, name: str, source: str | None) -> float:
+    value = ds.attrs[name]
+    try:
+        v = float(np.asarray(value).item())
+    except (TypeError, ValueError):
+        v = float("nan")
+    if not (np.isfinite(v) and v > 0):
+        raise RecordError(f"{_where(source)}attribute {name!r} must be a positive number, was {value!r}.")
+    return v
+
+
+def get_sample_rate(ds: xr.Dataset) -> float:
+    """Sample rate in Hz: the ``sample_rate`` attribute, else 1 / median time step.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from modalnb import records_from_arrays
+    >>> get_sample_rate(records_from_arrays(np.zeros((1, 32)), sample_rate=500.0))
+    500.0
+    """
+    if "sample_rate" in ds.attrs:
+        return float(ds.attrs["sample_rate"])
+    return float(1.0 / np.median(np.diff(np.asarray(ds["time"].values, dtype=float))))
+
+
+def has_force(ds: xr.Dataset) -> bool:
+    """True when the record set holds a ``force`` variable."""
+    return "force" in ds.data_vars
+
+
+def records_from_arrays(
+    response: Any,
+    sample_rate: float,
+    *,
+    channels: Sequence[str] | None = None,
+    force: Any = None,
+    hits: Sequence[int] | None = None,
+    t0: float = 0.0,
+    units: str = "m/s^2",
+    force_units: str = "N",
+    node: Sequence[str] | None = None,
+    direction: Sequence[str] | None = None,
+    position: Any = None,
+    attrs: dict[str, Any] | None = None,
+) -> xr.Dataset:
+    """Build a validated record set from plain arrays.
+
+    Parameters
+    ----------
+    response : array_like
+        Shape (hit, channel, time), (channel, time) for a single hit, or (time,) for a
+        single channel of a single hit.
+    sample_rate : float
+        Samples per second (Hz).
+    channels : sequence of str, optional
+        Channel names; default ``"ch1"``, ``"ch2"``, ...
+    force : array_like, optional
+        Shape (hit, time), or (time,) for one hit.
+    hits : sequence of int, optional
+        Hit labels; default 1..N.
+    t0 : float
+        Time of the first sample in seconds (negative with pre-trigger).
+    units, force_units : str
+        Units of response and force.
+    node, direction : sequence of str, optional
+        Per-channel node names and measurement directions (e.g. ``"+Z"``).
+    position : array_like, optional
+        Node positions, shape (channel, 3), in m; stored as coords ``x``, ``y``, ``z``.
+    attrs : dict, optional
+        Extra dataset attributes (``exponential_window_tau_s``, ``full_scale``, ...).
+
+    Returns
+    -------
+    xarray.Dataset
+        A record set that passes :func:`validate_records`.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> t = np.arange(256) / 1024.0
+    >>> x = np.exp(-5 * t) * np.cos(2 * np.pi * 80 * t)
+    >>> ds = records_from_arrays(x[None, None, :], 1024.0, channels=["tip"])
+    >>> dict(ds["response"].sizes)
+    {'hit': 1, 'channel': 1, 'time': 256}
+    """
+    from ._utils import check_positive
+
+    fs = check_positive("sample_rate", sample_rate)
+    try:
+        r = np.asarray(response, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise RecordError("`response` must be an array of real numbers.") from None
+    if r.ndim == 1:
+        r = r[None, None, :]
+    elif r.ndim == 2:
+        r = r[None, :, :]
+    elif r.ndim != 3:
+        raise RecordError(
+            f"`response` must have 1, 2 or 3 dims (hit, channel, time), has shape {r.shape}."
+        )
+    n_hit, n_ch, n_t = r.shape
+    if channels is None:
+        channels = [f"ch{i + 1}" for i in range(n_ch)]
+    channels = [str(c) for c in channels]
+    if len(channels) != n_ch:
+        raise RecordError(f"{len(channels)} channel names given for {n_ch} response channels.")
+    if hits is None:
+        hits = list(range(1, n_hit + 1))
+    hit_arr = np.asarray(hits)
+    if hit_arr.shape != (n_hit,) or not np.issubdtype(hit_arr.dtype, np.integer):
+        raise RecordError(f"`hits` must be {n_hit} integer labels, got {list(hits)!r}.")
+    time = float(t0) + np.arange(n_t) / fs
+    coords: dict[str, Any] = {
+        "hit": hit_arr.astype(np.int64),
+        "channel": np.array(channels, dtype=object),
+        "time": time,
+    }
+    for name, val in (("node", node), ("direction", direction)):
+        if val is not None:
+            val = [str(v) for v in val]
+            if len(val) != n_ch:
+                raise RecordError(f"`{name}` has {len(val)} entries for {n_ch} channels.")
+            coords[name] = ("channel", np.array(val, dtype=object))
+    if position is not None:
+        p = np.asarray(position, dtype=float)
+        if p.shape != (n_ch, 3):
+            raise RecordError(f"`position` must have shape ({n_ch}, 3), has {p.shape}.")
+        for k, axis in enumerate("xyz"):
+            coords[axis] = ("channel", p[:, k], {"units": "m"})
+    data_vars: dict[str, Any] = {"response": (DIMS, r, {"units": str(units)})}
+    if force is not None:
+        try:
+            f = np.asarray(force, dtype=np.float64)
+        except (TypeError, ValueError):
+            raise RecordError("`force` must be an array of real numbers.") from None
+        if f.ndim == 1:
+            f = f[None, :]
+        if f.shape != (n_hit, n_t):
+            raise RecordError(f"`force` must have shape (hit, time) = {(n_hit, n_t)}, has {f.shape}.")
+        data_vars["force"] = (("hit", "time"), f, {"units": str(force_units)})
+    ds = xr.Dataset(data_vars, coords=coords, attrs={"sample_rate": fs, **(attrs or {})})
+    ds["time"].attrs["units"] = "s"
+    return validate_records(ds)

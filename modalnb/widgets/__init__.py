@@ -1,0 +1,1 @@
+"""Notebook widgets: the only part of modalnb that imports ipywidgets and plotly."""
