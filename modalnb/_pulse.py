@@ -33,9 +33,10 @@ def pulse_bounds(force: np.ndarray, time: np.ndarray, *, end_fraction: float = 0
     --------
     >>> import numpy as np
     >>> t = np.arange(100) / 1000.0
-    >>> f = np.where((t >= 0.01) & (t < 0.015), np.sin(np.pi * (t - 0.01) / 0.005), 0.0)
+    >>> f = np.zeros(100)
+    >>> f[10:15] = [0.2, 0.7, 1.0, 0.6, 0.1]
     >>> pulse_bounds(f, t)
-    (10, 12, 15)
+    (9, 12, 15)
     """
     f = np.abs(np.asarray(force, dtype=float))
     if f.shape != np.shape(time):
