@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from importlib.metadata import PackageNotFoundError, version
 
+from . import accessor as _accessor  # noqa: F401  (registers ds.modalnb)
 from ._errors import EstimationError, ModalnbError, RecordError, RecordFileNotFoundError
 from .records import get_sample_rate, has_force, records_from_arrays, validate_records
 
