@@ -34,6 +34,7 @@ __all__ = [
     "records_from_arrays",
     "get_sample_rate",
     "has_force",
+    "records_checksum",
 ]
 
 #: Dimensions of the ``response`` variable, in order.
@@ -347,3 +348,28 @@ def records_from_arrays(
     ds = xr.Dataset(data_vars, coords=coords, attrs={"sample_rate": fs, **(attrs or {})})
     ds["time"].attrs["units"] = "s"
     return validate_records(ds)
+
+
+def records_checksum(ds: xr.Dataset) -> str:
+    """SHA-256 of the arrays that define a record set (time, hit, channel, response, force).
+
+    Two record sets with the same checksum give the same modal table for the same recipe.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> a = records_from_arrays(np.ones((1, 32)), 100.0)
+    >>> records_checksum(a) == records_checksum(a.copy(deep=True))
+    True
+    """
+    import hashlib
+
+    h = hashlib.sha256()
+    for name in ("time", "hit", "response", "force"):
+        if name in ds.variables:
+            arr = np.ascontiguousarray(np.asarray(ds[name].values, dtype=np.float64))
+            h.update(name.encode())
+            h.update(str(arr.shape).encode())
+            h.update(arr.tobytes())
+    h.update("\x1f".join(map(str, ds["channel"].values.tolist())).encode())
+    return "sha256:" + h.hexdigest()
