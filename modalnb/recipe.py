@@ -94,10 +94,16 @@ class Recipe:
         if self.n_modes is not None:
             if isinstance(self.n_modes, bool) or not isinstance(self.n_modes, int) or self.n_modes < 1:
                 raise RecipeError(f"recipe `n_modes` must be a positive integer or null, was {self.n_modes!r}.")
-        try:
-            self.hit_overrides = {int(k): _as_bool(v, f"hit_overrides[{k}]") for k, v in dict(self.hit_overrides).items()}
-        except (TypeError, ValueError):
-            raise RecipeError(f"recipe `hit_overrides` keys must be hit labels (integers), got {self.hit_overrides!r}.") from None
+        overrides: dict[int, bool] = {}
+        for k, v in dict(self.hit_overrides).items():
+            try:
+                label = int(k)
+            except (TypeError, ValueError):
+                raise RecipeError(
+                    f"recipe `hit_overrides` keys must be hit labels (integers), got {k!r}."
+                ) from None
+            overrides[label] = _as_bool(v, f"hit_overrides[{k}]")
+        self.hit_overrides = overrides
         if not isinstance(self.check_thresholds, dict):
             raise RecipeError("recipe `check_thresholds` must be an object of keyword arguments.")
         self.correct_exponential_window = _as_bool(self.correct_exponential_window, "correct_exponential_window")

@@ -1,0 +1,61 @@
+"""The analysis recipe: versioned, human-readable, never misread (issue 4 §1)."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from modalnb.recipe import RECIPE_VERSION, Recipe, RecipeError, load_recipe, save_recipe
+
+
+def test_round_trip_file(tmp_path):
+    r = Recipe(band=(5.0, 900.0), window=(0.01, 1.5), n_modes=4, hit_overrides={3: False, 5: True},
+               check_thresholds={"double_hit_fraction": 0.2}, source="bay3.nc", notes="left bracket")
+    p = save_recipe(r, tmp_path / "recipe.json")
+    back = load_recipe(p)
+    assert back == r
+    data = json.loads(p.read_text())
+    assert list(data)[:2] == ["format", "version"] and data["version"] == RECIPE_VERSION
+    assert data["hit_overrides"] == {"3": False, "5": True}  # JSON keys are text; labels come back as int
+    assert back.hit_overrides == {3: False, 5: True}
+
+
+def test_save_is_atomic_and_leaves_no_temp(tmp_path):
+    p = tmp_path / "recipe.json"
+    save_recipe(Recipe(n_modes=2), p)
+    save_recipe(Recipe(n_modes=3), p)
+    assert load_recipe(p).n_modes == 3
+    assert [q.name for q in tmp_path.iterdir()] == ["recipe.json"]
+
+
+@pytest.mark.parametrize(
+    ("data", "match"),
+    [
+        ({"format": "modalnb-recipe", "version": RECIPE_VERSION + 1}, r"written by a newer modalnb"),
+        ({"format": "modalnb-recipe", "version": 0}, r"not a known version"),
+        ({"format": "something-else", "version": 1}, r"not a modalnb recipe"),
+        ({"format": "modalnb-recipe", "version": "1"}, r"'version' must be an integer"),
+        ({"format": "modalnb-recipe", "version": 1, "bands": [1, 2]}, r"unknown recipe key 'bands'.*Did you mean 'band'"),
+        ({"format": "modalnb-recipe", "version": 1, "band": [200, 100]}, r"low < high"),
+        ({"format": "modalnb-recipe", "version": 1, "n_modes": 0}, r"positive integer"),
+        ({"format": "modalnb-recipe", "version": 1, "hit_overrides": {"x": True}}, r"hit labels"),
+        ({"format": "modalnb-recipe", "version": 1, "hit_overrides": {"2": "no"}}, r"true or false"),
+        ([1, 2], r"must be a JSON object"),
+    ],
+)
+def test_refused_never_misread(tmp_path, data, match):
+    p = tmp_path / "r.json"
+    p.write_text(json.dumps(data))
+    with pytest.raises(RecipeError, match=match) as info:
+        load_recipe(p)
+    assert str(info.value).startswith(str(p)) and "\n" not in str(info.value)
+
+
+def test_bad_json_and_missing_file(tmp_path):
+    p = tmp_path / "r.json"
+    p.write_text("{not json")
+    with pytest.raises(RecipeError, match=r"not valid JSON .* line 1"):
+        load_recipe(p)
+    with pytest.raises(FileNotFoundError):
+        load_recipe(tmp_path / "absent.json")
