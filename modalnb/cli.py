@@ -43,6 +43,15 @@ def _add_reader_args(p: argparse.ArgumentParser) -> None:
     g.add_argument("--force-calibration", dest="force_calibration", type=float, help="WAV: force units at digital full scale")
 
 
+def _add_fit_args(p: argparse.ArgumentParser) -> None:
+    g = p.add_argument_group("analysis choices (override the recipe)")
+    g.add_argument("--band", nargs=2, type=float, metavar=("FMIN", "FMAX"), help="frequency band in Hz")
+    g.add_argument("--window", nargs=2, type=float, metavar=("T0", "T1"), help="fit window, record times in s")
+    g.add_argument("--modes", type=int, metavar="N", help="number of modes to keep")
+    g.add_argument("--recipe", metavar="FILE", help="replay this recipe (JSON)")
+    p.add_argument("--quiet", action="store_true", help="no progress messages")
+
+
 def _open(args: argparse.Namespace):
     from .io import open_records
 
@@ -60,23 +69,133 @@ def _cmd_check(args: argparse.Namespace) -> int:
     return 0
 
 
+class _Steps:
+    """Progress feedback on stderr: each step's name, then its duration."""
+
+    def __init__(self, quiet: bool = False):
+        self.quiet = quiet
+        self._t0: float | None = None
+
+    def __call__(self, msg: str) -> None:
+        import time
+
+        now = time.perf_counter()
+        if self._t0 is not None and not self.quiet:
+            print(f" {now - self._t0:.1f} s", file=sys.stderr, flush=True)
+        self._t0 = now
+        if not self.quiet:
+            print(f"modalnb: {msg}...", end="", file=sys.stderr, flush=True)
+
+    def done(self) -> None:
+        self("done")
+        if not self.quiet:
+            print("", file=sys.stderr, flush=True)
+
+
+def _recipe_from_args(args: argparse.Namespace, records: Any):
+    from .pipeline import recipe_for
+    from .recipe import load_recipe
+
+    base = load_recipe(args.recipe) if getattr(args, "recipe", None) else None
+    if base is not None and base.records_checksum:
+        from .records import records_checksum
+
+        if base.records_checksum != records_checksum(records):
+            print(
+                f"modalnb: warning: {args.recipe} was made on other records (checksum differs); "
+                "the table may differ from the original",
+                file=sys.stderr,
+            )
+    changes: dict[str, Any] = {}
+    if getattr(args, "band", None):
+        changes["band"] = tuple(args.band)
+    if getattr(args, "window", None):
+        changes["window"] = tuple(args.window)
+    if getattr(args, "modes", None) is not None:
+        changes["n_modes"] = args.modes
+    if getattr(args, "source", None):
+        changes["source"] = args.source
+    return recipe_for(records, base, **changes)
+
+
+def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: str) -> Any:
+    from .export import write_modal_table
+    from .pipeline import run_recipe
+
+    result, checks = run_recipe(records, recipe, progress=steps)
+    steps("writing the modal table")
+    write_modal_table(result, out, recipe=recipe, checks=checks)
+    steps("writing the HTML report")
+    from .report import write_report
+
+    write_report(records, result, checks, out / "report.html", title=title)
+    steps.done()
+    return result, checks
+
+
+def _cmd_fit(args: argparse.Namespace) -> int:
+    from .export import CAUTION, format_modal_table
+
+    steps = _Steps(args.quiet)
+    steps("reading records")
+    ds = _open(args)
+    args.source = ", ".join(args.records)
+    recipe = _recipe_from_args(args, ds)
+    out = Path(args.out)
+    result, _ = _fit_and_write(ds, recipe, out, steps, title=f"modalnb: {args.source}")
+    print(format_modal_table(result))
+    print(f"wrote modes.csv, shapes.csv, hits.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
+    print(CAUTION)
+    return 0
+
+
 def _cmd_demo(args: argparse.Namespace) -> int:
     from . import demo
-    from .checks import check_hits, format_hit_report
+    from .checks import format_hit_report
+    from .export import CAUTION, format_modal_table
 
+    steps = _Steps(args.quiet)
+    steps("loading the bundled demo campaign")
     ds = demo.load_demo()
-    out = Path(args.out) if args.out else None
-    print("modalnb demo: the bundled example campaign (" + ds.attrs.get("title", "demo") + ")")
-    report = check_hits(ds)
-    print(format_hit_report(report, source="bundled demo campaign"))
-    if out is not None:
-        from .io import save_records
-
-        out.mkdir(parents=True, exist_ok=True)
-        save_records(ds, out / "records.nc")
-        _atomic_text(out / "hit_report.txt", format_hit_report(report, source="bundled demo campaign") + "\n")
-        print(f"wrote {out / 'records.nc'} and {out / 'hit_report.txt'}")
+    truth = demo.load_demo_truth()
+    args.source = "bundled demo campaign"
+    recipe = _recipe_from_args(args, ds)
+    out = Path(args.out)
+    result, checks = _fit_and_write(ds, recipe, out, steps, title="modalnb demo campaign")
+    print(f"modalnb demo: {ds.attrs.get('title', 'demo campaign')}")
+    print(format_hit_report(checks, source="bundled demo campaign"))
+    print()
+    print("Modal table")
+    print(format_modal_table(result))
+    print()
+    print(_truth_comparison(result, truth))
+    print(f"wrote modes.csv, shapes.csv, hits.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
+    print(CAUTION)
     return 0
+
+
+def _truth_comparison(result: Any, truth: dict) -> str:
+    """The demo's true modal parameters next to the estimates (nearest in frequency)."""
+    import math
+
+    lines = ["Compared with the demo's true values (generated physics):",
+             "mode  true f_n [Hz]  estimate [Hz]  (err/std)  true zeta [%]  estimate [%]  (err/std)"]
+    est_f = [float(v) for v in result["frequency_hz"].values]
+    for k, m in enumerate(truth.get("modes", []), start=1):
+        f_true, z_true = float(m["frequency_hz"]), float(m["damping_ratio"])
+        if not est_f:
+            lines.append(f"{k:<4d}  {f_true:<13.6g}  not found")
+            continue
+        j = min(range(len(est_f)), key=lambda i: abs(est_f[i] - f_true))
+        f, fs = est_f[j], float(result["frequency_hz_std"].values[j])
+        z, zs = float(result["damping_ratio"].values[j]), float(result["damping_ratio_std"].values[j])
+        if abs(f - f_true) > 0.05 * f_true:
+            lines.append(f"{k:<4d}  {f_true:<13.6g}  not found")
+            continue
+        ef = (f - f_true) / fs if fs > 0 else math.nan
+        ez = (z - z_true) / zs if zs > 0 else math.nan
+        lines.append(f"{k:<4d}  {f_true:<13.6g}  {f:<13.6g}  ({ef:+.1f})     {100 * z_true:<13.4g}  {100 * z:<12.4g}  ({ez:+.1f})")
+    return "\n".join(lines)
 
 
 def _atomic_text(path: Path, text: str) -> None:
@@ -121,8 +240,15 @@ def build_parser() -> argparse.ArgumentParser:
     _add_reader_args(pc)
     pc.set_defaults(func=_cmd_check)
 
+    pf = sub.add_parser("fit", help="hit checks, mode fit, modal table files and HTML report")
+    _add_reader_args(pf)
+    _add_fit_args(pf)
+    pf.add_argument("--out", required=True, help="output folder (created or updated)")
+    pf.set_defaults(func=_cmd_fit)
+
     pd = sub.add_parser("demo", help="run the main job on the bundled example campaign")
-    pd.add_argument("--out", help="folder for the output files")
+    pd.add_argument("--out", default="modalnb-demo", help="output folder (default: modalnb-demo)")
+    _add_fit_args(pd)
     pd.set_defaults(func=_cmd_demo)
 
     pb = sub.add_parser("bench", help="accuracy (vs the Cramér-Rao bound) and speed benchmark")
