@@ -1,0 +1,496 @@
+"""Tests of modalnb.checks (hit checks and the hit report).
+
+The records are built here from closed forms: a half-sine hammer pulse (METHODS.md §5)
+and the impulse response of a viscously damped single-degree-of-freedom oscillator,
+x(t) = A exp(-zeta wn t) sin(wd t), wd = wn sqrt(1 - zeta^2) (any vibration textbook, e.g.
+Inman, Engineering Vibration, ch. 1 [from memory]). The "truth" each check is compared
+with is what the scenario was built with (delay, ratio, noise level, clip level) or a
+closed form evaluated independently (half-sine spectrum, verified here with
+scipy.integrate.quad).
+"""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from modalnb._errors import ModalnbError, RecordError
+from modalnb.checks import CHECK_NAMES, check_hits, format_hit_report
+from modalnb.records import records_from_arrays
+
+FS = 10240.0
+T0 = -0.02  # 20 ms pre-trigger
+N = 5324  # about 0.5 s after the trigger
+TC = 1e-3  # 1 ms pulse: about 10 samples across it (METHODS.md §5, common practice)
+MODES = ((120.0, 0.03, 1.0), (410.0, 0.01, 0.5))  # (fn Hz, zeta, amplitude)
+
+
+def _time(n: int = N, t0: float = T0, fs: float = FS) -> np.ndarray:
+    return t0 + np.arange(n) / fs
+
+
+def half_sine(t: np.ndarray, start: float, tc: float, peak: float = 1.0) -> np.ndarray:
+    """Half-sine hammer pulse of duration tc starting at `start` (METHODS.md §5)."""
+    u = (t - start) / tc
+    return np.where((u >= 0) & (u <= 1), peak * np.sin(np.pi * np.clip(u, 0, 1)), 0.0)
+
+
+def impulse_response(t: np.ndarray, start: float, modes=MODES, scale: float = 1.0) -> np.ndarray:
+    """Sum of SDOF impulse responses A exp(-zeta wn t) sin(wd t), zero before `start`."""
+    tau = t - start
+    x = np.zeros_like(t)
+    for fn, zeta, amp in modes:
+        wn = 2 * np.pi * fn
+        wd = wn * np.sqrt(1 - zeta**2)
+        x += amp * np.exp(-zeta * wn * np.clip(tau, 0, None)) * np.sin(wd * np.clip(tau, 0, None))
+    return scale * np.where(tau >= 0, x, 0.0)
+
+
+def make_hits(
+    *,
+    n_hits: int = 1,
+    seed: int = 0,
+    force_noise: float = 0.005,
+    resp_noise: float = 0.002,
+    second: tuple[float, float] | None = None,
+    tc: float = TC,
+    modes=MODES,
+    n: int = N,
+    t0: float = T0,
+    fs: float = FS,
+    n_channels: int = 2,
+    with_force: bool = True,
+    attrs: dict | None = None,
+):
+    """Records of `n_hits` identical-in-law hits; `second` = (delay s, ratio) double hit.
+
+    Noise levels are fractions of the peak force (force) and of the response peak.
+    """
+    rng = np.random.default_rng(seed)
+    t = _time(n, t0, fs)
+    f1 = half_sine(t, 0.0, tc)
+    x1 = impulse_response(t, 0.0, modes)
+    if second is not None:
+        delay, ratio = second
+        f1 = f1 + half_sine(t, delay, tc, ratio)
+        x1 = x1 + impulse_response(t, delay, modes, ratio)
+    shapes = np.array([1.0, -0.6, 0.35, 0.8])[:n_channels]
+    x_peak = np.max(np.abs(x1))
+    resp = np.empty((n_hits, n_channels, n))
+    force = np.empty((n_hits, n))
+    for h in range(n_hits):
+        force[h] = f1 + force_noise * rng.standard_normal(n)
+        for c in range(n_channels):
+            resp[h, c] = shapes[c] * x1 + resp_noise * x_peak * rng.standard_normal(n)
+    return records_from_arrays(
+        resp, fs, force=force if with_force else None, t0=t0, attrs=attrs
+    ), x_peak
+
+
+def closed_form_half_sine(f: np.ndarray, tc: float) -> np.ndarray:
+    """|F(f)| of a unit-peak half-sine of duration tc (METHODS.md §5, derived)."""
+    u = 2 * np.asarray(f, dtype=float) * tc
+    with np.errstate(divide="ignore", invalid="ignore"):
+        mag = (2 * tc / np.pi) * np.abs(np.cos(np.pi * f * tc)) / np.abs(1 - u**2)
+    # removable singularity at f tc = 1/2: the limit is tc/2
+    return np.where(np.isclose(u, 1.0), tc / 2, mag)
+
+
+# ------------------------------------------------------------------ double hits
+
+
+@pytest.mark.parametrize("delay", [2e-3, 3e-3, 5e-3, 10e-3, 20e-3, 30e-3])
+@pytest.mark.parametrize("ratio", [0.15, 0.3, 0.5, 0.8])
+def test_double_hit_detected_across_delays_and_ratios(delay, ratio):
+    ds, _ = make_hits(second=(delay, ratio), seed=int(1e4 * delay + 100 * ratio))
+    out = check_hits(ds)
+    # truth: the scenario's second pulse (peak ratio and peak-to-peak delay by construction)
+    assert not bool(out["accepted"].item())
+    assert str(out["reason"].item()).startswith("double hit")
+    assert abs(float(out["double_hit_ratio"].item()) - ratio) < 0.03  # force noise 0.5 % of peak
+    assert abs(float(out["double_hit_delay_s"].item()) - delay) < 2 / FS
+
+
+def test_double_hit_with_stronger_second_tap_found_before_the_peak():
+    # a weak first tap (40 % of the second) 8 ms before the main one (construction)
+    t = _time()
+    f = 0.4 * half_sine(t, 0.0, TC) + half_sine(t, 8e-3, TC)
+    x = 0.4 * impulse_response(t, 0.0) + impulse_response(t, 8e-3)
+    rng = np.random.default_rng(5)
+    ds = records_from_arrays(x + 1e-3 * rng.standard_normal(t.size), FS,
+                             force=f + 2e-3 * rng.standard_normal(t.size), t0=T0)
+    out = check_hits(ds)
+    assert not bool(out["accepted"].item())
+    assert abs(float(out["double_hit_ratio"].item()) - 0.4) < 0.03
+    assert abs(float(out["double_hit_delay_s"].item()) + 8e-3) < 2 / FS
+    assert "earlier" in str(out["reason"].item())
+
+
+@pytest.mark.parametrize("force_noise,resp_noise", [(0.001, 0.001), (0.01, 0.01), (0.01, 0.001)])
+def test_clean_hits_with_noise_are_not_flagged(force_noise, resp_noise):
+    # 40 seeds per noise level; realistic force noise 0.1-1 % of the peak (task brief)
+    ds, _ = make_hits(n_hits=40, seed=11, force_noise=force_noise, resp_noise=resp_noise)
+    out = check_hits(ds, band=(0.0, 800.0))
+    assert out["accepted"].values.all(), out["reason"].values
+    assert all(w == "" for w in out["warnings"].values), set(out["warnings"].values)
+    # largest excursion outside the pulse is noise: a few sigma, far below 10 %
+    assert np.all(out["double_hit_ratio"].values < 6 * force_noise + 1e-3)
+
+
+@pytest.mark.parametrize("fs", [FS, 51200.0])
+def test_pulse_duration_matches_half_sine_crossings(fs):
+    # A half-sine exceeds a fraction p of its peak for Tc (1 - 2 asin(p) / pi)
+    # (elementary trigonometry); p = 0.02 is the pulse bound. The sampled pulse has a
+    # kink at each end, so the interpolated crossings are good to about one sample.
+    ds, _ = make_hits(force_noise=0.0, resp_noise=0.001, tc=2e-3, fs=fs, n=int(0.3 * fs))
+    out = check_hits(ds)
+    expected = 2e-3 * (1 - 2 * np.arcsin(0.02) / np.pi)
+    assert float(out["pulse_duration_s"].item()) == pytest.approx(expected, abs=1.0 / fs)
+    assert float(out["peak_force"].item()) == pytest.approx(1.0, abs=0.01)  # sampled near peak
+
+
+def test_noise_only_force_is_a_weak_hit_not_a_double_hit():
+    # no pulse at all: force is white noise (construction); must not be called a double hit
+    ds, _ = make_hits(force_noise=0.01)
+    noisy = ds.copy(deep=True)
+    rng = np.random.default_rng(3)
+    noisy["force"].values[:] = 0.01 * rng.standard_normal(noisy["force"].shape)
+    out = check_hits(noisy)
+    assert bool(out["accepted"].item())
+    assert "double hit" not in str(out["warnings"].item())
+    assert "weak hit (no clear force pulse" in str(out["warnings"].item())
+    assert np.isnan(float(out["double_hit_ratio"].item()))
+
+
+# ------------------------------------------------------------------ clipping
+
+
+def test_clipping_detected_with_full_scale_attr_and_coord():
+    ds, x_peak = make_hits(n_hits=3, seed=2)
+    fs_level = 1.2 * x_peak  # ADC full scale (construction); hits 1 and 3 stay below it
+    clipped = ds.copy(deep=True)
+    # hit 2 is twice as hard and saturates the ADC on ch1 (peak 2 x_peak) and ch2 (1.2 x_peak)
+    clipped["response"].values[1] = np.clip(2 * clipped["response"].values[1], -fs_level, fs_level)
+    clipped.attrs["full_scale"] = fs_level
+    out = check_hits(clipped)
+    # samples at >= 99 % of full scale are clipped (METHODS.md §5)
+    assert out["accepted"].values.tolist() == [True, False, True]
+    assert int(out["channel_clipped_samples"].sel(hit=2, channel="ch1")) > 0
+    assert str(out["reason"].sel(hit=2).item()) == "clipping on ch1, ch2"
+    assert out["clipped_samples"].values[[0, 2]].tolist() == [0, 0]
+    # per-channel coord: ch2 (shape 0.6, peak 0.6 x_peak) under a full scale it never reaches
+    per_ch = ds.assign_coords(full_scale=("channel", [0.7 * x_peak, 0.59 * x_peak]))
+    per_ch["response"].values[:, 0] = np.clip(per_ch["response"].values[:, 0],
+                                              -0.7 * x_peak, 0.7 * x_peak)
+    out2 = check_hits(per_ch)
+    assert not out2["accepted"].values.any()
+    assert all(s == "ch1, ch2" for s in out2["clipped_channels"].values)
+    # a full scale well above the peaks: nothing flagged (construction)
+    roomy = ds.assign_coords(full_scale=("channel", [2 * x_peak, 2 * x_peak]))
+    assert check_hits(roomy)["accepted"].values.all()
+
+
+def test_force_clipping_with_force_full_scale():
+    ds, _ = make_hits(n_hits=2, seed=4)
+    ds = ds.copy(deep=True)
+    ds["force"].values[0] = np.clip(ds["force"].values[0], None, 0.8)
+    ds.attrs["force_full_scale"] = 0.8
+    out = check_hits(ds)
+    assert out["accepted"].values.tolist() == [False, False]  # hit 2 peaks at 1.0 > 0.8 too
+    assert int(out["force_clipped_samples"].sel(hit=1)) >= 3
+    assert "force" in str(out["clipped_channels"].sel(hit=1).item())
+    ds.attrs["force_full_scale"] = 5.0
+    out = check_hits(ds)
+    assert int(out["force_clipped_samples"].sel(hit=2)) == 0
+    # peak force 1.0 of 5.0 full scale: 20 %, above the 10 % weak-hit floor (METHODS.md §5)
+    assert "weak hit" not in str(out["warnings"].sel(hit=2).item())
+
+
+@pytest.mark.parametrize("level", [0.3, 0.6, 0.9])
+def test_clipping_detected_without_full_scale_from_flat_tops(level):
+    # np.clip produces runs of equal extreme samples (a saturated ADC; METHODS.md §5)
+    ds, x_peak = make_hits(n_hits=2, seed=7)
+    ds = ds.copy(deep=True)
+    ds["response"].values[0, 1] = np.clip(ds["response"].values[0, 1],
+                                          -level * 0.6 * x_peak, level * 0.6 * x_peak)
+    ds["force"].values[1] = np.clip(ds["force"].values[1], -level, level)
+    out = check_hits(ds)
+    assert out["accepted"].values.tolist() == [False, False]
+    assert str(out["clipped_channels"].sel(hit=1).item()) == "ch2"
+    assert str(out["clipped_channels"].sel(hit=2).item()) == "force"
+    assert int(out["channel_clipped_samples"].sel(hit=1, channel="ch1")) == 0
+
+
+def test_noise_free_force_with_zero_baseline_is_not_a_flat_top():
+    # exact zeros outside the pulse are a quiet baseline, not a clipped extreme
+    ds, _ = make_hits(force_noise=0.0)
+    out = check_hits(ds)
+    assert bool(out["accepted"].item())
+    assert int(out["force_clipped_samples"].item()) == 0
+
+
+# ------------------------------------------------------------------ dead channels
+
+
+def test_dead_channels_warned_not_crashed():
+    ds, _ = make_hits(n_hits=2, n_channels=4, seed=8)
+    ds = ds.copy(deep=True)
+    ds["response"].values[:, 2] = 0.0
+    ds["response"].values[1, 3] = 0.25  # constant: a stuck channel
+    out = check_hits(ds)
+    assert out["accepted"].values.all()
+    assert str(out["dead_channels"].sel(hit=1).item()) == "ch3"
+    assert str(out["dead_channels"].sel(hit=2).item()) == "ch3, ch4"
+    assert "dead channel ch3" in str(out["warnings"].sel(hit=1).item())
+    assert "dead channels ch3, ch4" in str(out["warnings"].sel(hit=2).item())
+    assert bool(out["channel_dead"].sel(hit=2, channel="ch4"))
+    assert np.isnan(float(out["channel_snr_db"].sel(hit=1, channel="ch3")))
+    assert np.isfinite(float(out["snr_db"].sel(hit=2)))
+    # all channels dead: still no crash, NaN measures
+    ds["response"].values[:] = 0.0
+    out = check_hits(ds)
+    assert np.isnan(out["snr_db"].values).all()
+    assert all("dead channels ch1, ch2, ch3, ch4" in w for w in out["warnings"].values)
+
+
+# ------------------------------------------------------------------ overrides and policy
+
+
+def test_overrides_win_and_are_recorded():
+    clean, _ = make_hits(n_hits=1, seed=9)
+    double, _ = make_hits(n_hits=1, seed=10, second=(6e-3, 0.5))
+    import xarray as xr
+
+    ds = xr.concat([clean, double.assign_coords(hit=[2])], dim="hit")
+    auto = check_hits(ds)
+    assert auto["accepted"].values.tolist() == [True, False]
+    out = check_hits(ds, overrides={1: False, 2: True})
+    assert out["accepted"].values.tolist() == [False, True]
+    assert str(out["reason"].sel(hit=1).item()) == "rejected by user"
+    assert str(out["warnings"].sel(hit=2).item()).startswith("accepted by user despite: double hit")
+    assert out["user_decision"].values.tolist() == ["rejected", "accepted"]
+    # string labels (as a CLI would pass them) are accepted
+    assert check_hits(ds, overrides={"2": True})["accepted"].values.tolist() == [True, True]
+
+
+def test_unknown_override_label_errors_with_labels():
+    ds, _ = make_hits(n_hits=3)
+    with pytest.raises(RecordError, match=r"unknown hit 7.*\[1, 2, 3\]"):
+        check_hits(ds, overrides={7: True})
+    with pytest.raises(RecordError, match=r"hit 2 must be True .* was 'yes'"):
+        check_hits(ds, overrides={2: "yes"})
+
+
+def test_reject_policy_is_data():
+    double, _ = make_hits(second=(6e-3, 0.5))
+    out = check_hits(double, reject=())
+    assert bool(out["accepted"].item())
+    assert str(out["warnings"].item()).startswith("double hit")
+    noisy, _ = make_hits(resp_noise=0.1)
+    assert bool(check_hits(noisy)["accepted"].item())
+    out = check_hits(noisy, reject=("double hit", "clipping", "low snr"))
+    assert not bool(out["accepted"].item())
+    assert str(out["reason"].item()).startswith("low snr")
+    with pytest.raises(ModalnbError, match=r"unknown check 'double hits'.*Did you mean 'double hit'"):
+        check_hits(double, reject=("double hits",))
+    assert set(CHECK_NAMES) >= {"double hit", "clipping", "low snr", "soft tip", "not decayed"}
+
+
+# ------------------------------------------------------------------ SNR
+
+
+@pytest.mark.parametrize("t0", [T0, 0.0])
+def test_low_snr_warned_and_measured(t0):
+    # noise sigma 10 % of the response peak: SNR = 20 log10(peak / sigma) ~ 20 dB by
+    # construction (peak of the noisy record adds up to a few sigma: tolerance 3 dB)
+    ds, x_peak = make_hits(resp_noise=0.1, n_channels=1, t0=t0, seed=12)
+    out = check_hits(ds)
+    snr = float(out["snr_db"].item())
+    assert 19.0 < snr < 23.5
+    assert "low snr (ch1" in str(out["warnings"].item())
+    # without pre-trigger the floor comes from second differences of the tail, whose
+    # variance is 6 sigma^2 for white noise (elementary)
+    expected_source = "pre-trigger" if t0 < 0 else "record tail"
+    assert str(out["noise_source"].item()) == expected_source
+
+
+@pytest.mark.parametrize("t0", [T0, 0.0])
+def test_snr_tracks_noise_level(t0):
+    # 40 dB and 60 dB scenarios (sigma = 1 % and 0.1 % of the peak, construction); the
+    # noise floor comes from ~200-500 samples (about 5 % scatter in sigma, 0.4 dB), and noise
+    # on the peak sample adds up to ~0.3 dB at 40 dB: within 1.5 dB
+    for seed in (13, 14, 15):
+        for frac, db in ((0.01, 40.0), (0.001, 60.0)):
+            ds, _ = make_hits(resp_noise=frac, n_channels=1, t0=t0, seed=seed)
+            snr = float(check_hits(ds)["snr_db"].item())
+            assert db - 1.5 < snr < db + 1.5, (frac, snr)
+
+
+# ------------------------------------------------------------------ force spectrum
+
+
+def test_half_sine_closed_form_verified_by_quadrature():
+    # |F(f)| = (2Tc/pi)|cos(pi f Tc)|/|1-(2fTc)^2| against scipy.integrate.quad of
+    # int_0^Tc sin(pi t/Tc) exp(-2j pi f t) dt (independent numerical integration)
+    from scipy.integrate import quad
+
+    tc = 1.7e-3
+    for f in (0.0, 100.0, 294.117647, 500.0, 882.0, 1500.0, 4000.0):
+        re = quad(lambda s, f=f: np.sin(np.pi * s / tc) * np.cos(2 * np.pi * f * s), 0, tc)[0]
+        im = quad(lambda s, f=f: np.sin(np.pi * s / tc) * np.sin(2 * np.pi * f * s), 0, tc)[0]
+        assert closed_form_half_sine(np.array(f), tc) == pytest.approx(np.hypot(re, im),
+                                                                       rel=1e-7, abs=1e-12)
+    # METHODS.md §5 [D] landmarks re-derived: -3, -10, -20 dB at f Tc = 0.59, 1.02, 1.30,
+    # first zero at 1.5
+    from scipy.optimize import brentq
+
+    def level(u):
+        return 20 * np.log10(closed_form_half_sine(np.array(u / tc), tc) / (2 * tc / np.pi))
+
+    for db, u in ((-3, 0.59), (-10, 1.02), (-20, 1.30)):
+        assert brentq(lambda v, d=db: level(v) - d, 0.1, 1.49) == pytest.approx(u, abs=0.01)
+    assert closed_form_half_sine(np.array(1.5 / tc), tc) < 1e-12
+
+
+@pytest.mark.parametrize("band", [(0.0, 400.0), (100.0, 600.0), (0.0, 700.0)])
+def test_rolloff_matches_closed_form_half_sine(band):
+    tc, fs = 2e-3, 51200.0
+    ds, _ = make_hits(force_noise=0.0, resp_noise=0.001, tc=tc, fs=fs, n=8192, t0=-0.01)
+    out = check_hits(ds, band=band)
+    mag = closed_form_half_sine(np.array(band), tc)  # monotonic below f Tc = 1.5
+    expected = 20 * np.log10(mag[0] / mag[1])
+    assert float(out["force_rolloff_db"].item()) == pytest.approx(expected, abs=0.15)
+    # the -20 dB frequency of the spectrum against the closed form's root
+    from scipy.optimize import brentq
+
+    f20 = brentq(lambda f: 20 * np.log10(closed_form_half_sine(np.array(f), tc)
+                                         / (2 * tc / np.pi)) + 20, 1.0, 1.49 / tc)
+    assert float(out["force_bandwidth_hz"].item()) == pytest.approx(f20, rel=0.01)
+    # band (0, 700 Hz) is f Tc = 1.4: about 31 dB, more than 20 dB: soft tip
+    soft = "soft tip" in str(out["warnings"].item())
+    assert soft == (expected > 20.0)
+
+
+def test_soft_tip_warned_for_band_far_above_inverse_pulse_duration():
+    # 5 ms pulse: first spectral zero at 1.5 / Tc = 300 Hz; band up to 2 kHz (METHODS.md §5)
+    ds, _ = make_hits(tc=5e-3, force_noise=0.002)
+    out = check_hits(ds, band=(0.0, 2000.0))
+    assert "soft tip" in str(out["warnings"].item())
+    assert float(out["force_rolloff_db"].item()) > 20.0
+    assert bool(out["accepted"].item())  # a warning by default, not a rejection
+    # the same hit judged for a band the tip covers (f Tc = 0.5: -1.9 dB closed form)
+    out = check_hits(ds, band=(0.0, 100.0))
+    assert "soft tip" not in str(out["warnings"].item())
+    assert float(out["force_rolloff_db"].item()) == pytest.approx(
+        20 * np.log10((2 * 5e-3 / np.pi) / closed_form_half_sine(np.array(100.0), 5e-3)),
+        abs=0.3)
+
+
+# ------------------------------------------------------------------ decay by record end
+
+
+@pytest.mark.parametrize("t0", [T0, 0.0])
+def test_not_decayed_warned_with_suggestion(t0):
+    # zeta = 0.2 %, 120 Hz: decay rate 1.51 /s, record ~0.5 s: the response is still at
+    # ~exp(-1.51 * 0.49)/sqrt(2) of its peak in the last 5 % (RMS of a sinusoid is A/sqrt 2)
+    modes = ((120.0, 0.002, 1.0),)
+    ds, _ = make_hits(modes=modes, n_channels=1, t0=t0, resp_noise=0.002)
+    out = check_hits(ds)
+    w = str(out["warnings"].item())
+    assert "not decayed" in w and "longer record" in w and "exponential window" in w
+    t = ds["time"].values
+    t_end = t[-int(round(0.05 * t.size)):]
+    sigma = 0.002 * 2 * np.pi * 120.0
+    expected = 20 * np.log10(np.sqrt(np.mean(np.exp(-2 * sigma * t_end))) / np.sqrt(2))
+    assert float(out["end_level_db"].item()) == pytest.approx(expected, abs=0.5)
+
+
+def test_decayed_response_in_noise_is_not_warned():
+    # well decayed (MODES reach < -90 dB by the end); the end holds only noise at -40 dB
+    ds, _ = make_hits(resp_noise=0.01, n_channels=1)
+    out = check_hits(ds)
+    assert "not decayed" not in str(out["warnings"].item())
+
+
+# ------------------------------------------------------------------ without force
+
+
+def test_without_force_record():
+    ds, _ = make_hits(n_hits=2, with_force=False)
+    out = check_hits(ds, band=(0.0, 500.0))
+    assert out["accepted"].values.all()
+    assert all(w == "no force record" for w in out["warnings"].values)
+    for var in ("double_hit_ratio", "force_rolloff_db", "peak_force", "pulse_duration_s"):
+        assert np.isnan(out[var].values).all(), var
+
+
+# ------------------------------------------------------------------ bad input
+
+
+def test_bad_input_errors():
+    ds, _ = make_hits()
+    with pytest.raises(RecordError, match="expected an xarray.Dataset"):
+        check_hits({"response": 1})
+    with pytest.raises(RecordError, match=r"rec.nc: band upper edge 6000 Hz is above the Nyquist"):
+        check_hits(ds, band=(0, 6000), source="rec.nc")
+    with pytest.raises(ModalnbError, match=r"`band` must be a pair"):
+        check_hits(ds, band=300.0)
+    with pytest.raises(ModalnbError, match=r"`band` must satisfy"):
+        check_hits(ds, band=(500.0, 100.0))
+    with pytest.raises(ModalnbError, match=r"`clip_level` must be in"):
+        check_hits(ds, clip_level=1.5)
+    with pytest.raises(ModalnbError, match="expects the Dataset returned by check_hits"):
+        format_hit_report(ds)
+
+
+# ------------------------------------------------------------------ report
+
+
+def test_report_table_and_summary():
+    clean, _ = make_hits(n_hits=2, seed=20)
+    double, _ = make_hits(n_hits=1, seed=21, second=(10e-3, 0.4))
+    import xarray as xr
+
+    ds = xr.concat([clean, double.assign_coords(hit=[3])], dim="hit")
+    text = format_hit_report(check_hits(ds, band=(0.0, 800.0)), source="bench.nc")
+    lines = text.splitlines()
+    assert lines[0] == "hit checks for bench.nc"
+    assert lines[-1] == "2 of 3 hits accepted"  # two clean hits and one double (construction)
+    header = next(line for line in lines if "accepted" in line and "SNR" in line)
+    for unit in ("peak force [N]", "pulse [ms]", "SNR [dB]", "roll-off [dB]"):
+        assert unit in header
+    rows = [line for line in lines if line.strip()[:1].isdigit() and "hits accepted" not in line]
+    assert len(rows) == 3
+    col = header.index("accepted")
+    assert [r[col:col + 3].strip() for r in rows] == ["yes", "yes", "no"]
+    assert "rejected: double hit" in rows[2]
+    # the pulse column is in ms: the scenario's 1 ms half-sine (construction) measures
+    # Tc (1 - 2 asin(0.02) / pi) = 0.987 ms, give or take a sample (0.1 ms)
+    p_end = header.index("pulse [ms]") + len("pulse [ms]")
+    pulses = [float(r[:p_end].split()[-1]) for r in rows]
+    assert all(0.85 < p < 1.15 for p in pulses), pulses
+    # columns aligned: the SNR column ends at the same place on every row
+    end = header.index("SNR [dB]") + len("SNR [dB]")
+    assert all(r[end - 1] != " " and r[end] == " " for r in rows)
+
+
+def test_result_round_trips_through_netcdf(tmp_path):
+    import xarray as xr
+
+    ds, _ = make_hits(n_hits=2)
+    out = check_hits(ds, band=(0, 800))
+    path = tmp_path / "checks.nc"
+    out.to_netcdf(path, engine="h5netcdf")
+    back = xr.open_dataset(path, engine="h5netcdf").load()
+    assert back["accepted"].values.tolist() == out["accepted"].values.tolist()
+    assert back["reason"].values.tolist() == out["reason"].values.tolist()
+
+
+def test_checks_import_no_widget_stack():
+    code = ("import sys, modalnb.checks; "
+            "bad = [m for m in ('ipywidgets', 'plotly') if m in sys.modules]; "
+            "sys.exit(1 if bad else 0)")
+    assert subprocess.run([sys.executable, "-c", code]).returncode == 0
