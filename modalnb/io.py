@@ -217,7 +217,10 @@ def _read_netcdf(path: Path, src: str, head: bytes) -> xr.Dataset:
             "netCDF4 with b'\\x89HDF'). Hint: check that the file was written as netCDF."
         )
     try:
-        ds = xr.load_dataset(path, engine=engine, decode_times=False, decode_timedelta=False)
+        extra = {"mmap": False} if engine == "scipy" else {}
+        ds = xr.load_dataset(
+            path, engine=engine, decode_times=False, decode_timedelta=False, **extra
+        )
     except (OSError, ValueError, TypeError, KeyError, IndexError, EOFError) as exc:
         kind = "netCDF3" if engine == "scipy" else "netCDF4/HDF5"
         raise RecordError(
