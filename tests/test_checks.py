@@ -114,6 +114,21 @@ def test_double_hit_detected_across_delays_and_ratios(delay, ratio):
     assert abs(float(out["double_hit_delay_s"].item()) - delay) < 2 / FS
 
 
+@pytest.mark.parametrize("delay", [0.8e-3, 0.9e-3])
+@pytest.mark.parametrize("ratio", [0.3, 0.5, 0.8])
+def test_merged_double_tap_found_as_second_hump(delay, ratio):
+    # taps 0.8-0.9 Tc apart: the pulses overlap, so the force never falls to 2 % between
+    # them; f(t) = h(t) + a h(t - delay) has a valley between two humps (construction)
+    ds, _ = make_hits(second=(delay, ratio), seed=int(1e5 * delay + 10 * ratio))
+    out = check_hits(ds)
+    assert not bool(out["accepted"].item())
+    assert str(out["reason"].item()).startswith("double hit (merged second tap")
+    # second peak at delay + Tc/2, where the first half-sine is already zero: height = a;
+    # 10 samples per pulse miss the hump top by up to 1 - cos(pi/10) of a (sampling)
+    assert float(out["double_hit_ratio"].item()) == pytest.approx(ratio, abs=0.05 * ratio + 0.01)
+    assert abs(float(out["double_hit_delay_s"].item()) - delay) < 1.5 / FS
+
+
 def test_double_hit_with_stronger_second_tap_found_before_the_peak():
     # a weak first tap (40 % of the second) 8 ms before the main one (construction)
     t = _time()
@@ -162,6 +177,28 @@ def test_noise_only_force_is_a_weak_hit_not_a_double_hit():
     assert bool(out["accepted"].item())
     assert "double hit" not in str(out["warnings"].item())
     assert "weak hit (no clear force pulse" in str(out["warnings"].item())
+    assert np.isnan(float(out["double_hit_ratio"].item()))
+
+
+def test_weak_hit_against_force_full_scale():
+    # peak force 1.0 on a 50.0 full scale: 2 %, below the 10 % floor (METHODS.md §5,
+    # common practice); 1.0 on 5.0 is 20 %, above it
+    for full, weak in ((50.0, True), (5.0, False)):
+        ds, _ = make_hits(attrs={"force_full_scale": full})
+        out = check_hits(ds)
+        assert bool(out["accepted"].item())
+        assert ("weak hit (peak force 2.0 % of full scale)" in str(out["warnings"].item())) == weak
+    ds, _ = make_hits(attrs={"force_full_scale": 50.0})
+    assert not bool(check_hits(ds, reject=("weak hit",))["accepted"].item())
+
+
+def test_dead_force_record_is_a_warning():
+    ds, _ = make_hits()
+    ds = ds.copy(deep=True)
+    ds["force"].values[:] = 0.0
+    out = check_hits(ds)
+    assert bool(out["accepted"].item())
+    assert "dead force record" in str(out["warnings"].item())
     assert np.isnan(float(out["double_hit_ratio"].item()))
 
 
@@ -413,6 +450,17 @@ def test_decayed_response_in_noise_is_not_warned():
     ds, _ = make_hits(resp_noise=0.01, n_channels=1)
     out = check_hits(ds)
     assert "not decayed" not in str(out["warnings"].item())
+
+
+@pytest.mark.parametrize("t0", [T0, 0.0])
+def test_sensor_offset_is_not_taken_for_a_slow_decay(t0):
+    # a constant offset of 5 % of the peak on a well-decayed record (construction)
+    ds, x_peak = make_hits(n_channels=1, t0=t0)
+    ds = ds.copy(deep=True)
+    ds["response"].values += 0.05 * x_peak
+    out = check_hits(ds)
+    assert "not decayed" not in str(out["warnings"].item())
+    assert float(out["end_level_db"].item()) < -45.0  # noise 0.2 % of peak: about -54 dB
 
 
 # ------------------------------------------------------------------ without force
