@@ -1,0 +1,98 @@
+"""The HTML report opens offline in headless Chromium (issue 4 §3; ../shared/BROWSER.md)."""
+
+from __future__ import annotations
+
+import os
+import shutil
+import tempfile
+
+import numpy as np
+import pytest
+import xarray as xr
+
+from modalnb import records_from_arrays
+from modalnb.report import report_html
+from modalnb.synth import free_decay
+
+CHROMIUM = shutil.which("chromium")
+ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+        "--disable-background-networking", "--disable-component-update", "--disable-sync",
+        "--disable-dev-shm-usage"]
+
+
+def _browser_or_skip():
+    if CHROMIUM is None:
+        if os.environ.get("MODALNB_REQUIRE_BROWSER") == "1":
+            pytest.fail("MODALNB_REQUIRE_BROWSER=1 but no `chromium` on PATH (apt-get install chromium)")
+        pytest.skip("no `chromium` on PATH (Debian package chromium); browser checks skipped")
+    return pytest.importorskip("playwright.sync_api")
+
+
+EVIL = "<script>alert(1)</script>"
+
+
+def _case():
+    fs = 1024.0
+    t = -0.05 + np.arange(1024) / fs
+    resp = np.stack([free_decay(t, 40.0, 0.02, a) for a in (1.0, -0.5, 0.3)])
+    ds = records_from_arrays(resp[None], fs, channels=["tip", "mid", EVIL], t0=-0.05,
+                             force=np.where((t >= 0) & (t < 0.002), np.sin(np.pi * t / 0.002), 0.0))
+    result = xr.Dataset(
+        {
+            "frequency_hz": ("mode", [40.0]), "damping_ratio": ("mode", [0.02]),
+            "frequency_hz_std": ("mode", [0.01]), "damping_ratio_std": ("mode", [1e-4]),
+            "regime": ("mode", ["underdamped"]), "status": ("mode", ["ok"]),
+            "shape_amplitude": (("mode", "channel"), [[1.0, 0.5, 0.3]]),
+            "shape_phase_deg": (("mode", "channel"), [[0.0, 180.0, 0.0]]),
+            "hit_accepted": ("hit", [True]), "hit_reason": ("hit", [""]),
+        },
+        coords={"mode": [1], "channel": ds["channel"].values, "hit": [1]},
+    )
+    model = ds["response"].sel(time=slice(0.0, None)) * 0.98
+    return ds, result, model
+
+
+def test_report_escapes_text():
+    ds, result, model = _case()
+    page = report_html(ds, result, model=model, title=f"bay 3 {EVIL}")
+    assert EVIL not in page  # never raw in the page
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page
+    assert "not a certification" in page
+    assert page.count("plotly.js v") <= 2  # the library is embedded once
+
+
+def test_report_renders_offline_in_chromium():
+    sync_api = _browser_or_skip()
+    ds, result, model = _case()
+    tmp = tempfile.mkdtemp()
+    path = os.path.join(tmp, "report.html")
+    with open(path, "w", encoding="utf-8") as fh:
+        fh.write(report_html(ds, result, model=model, title="offline check"))
+    external, dialogs, errors = [], [], []
+    with sync_api.sync_playwright() as p:
+        ctx = p.chromium.launch_persistent_context(tempfile.mkdtemp(), executable_path=CHROMIUM,
+                                                   headless=True, args=ARGS)
+        try:
+            def route(r):
+                if r.request.url.startswith("file://"):
+                    r.continue_()
+                else:
+                    external.append(r.request.url)
+                    r.abort()
+
+            ctx.route("**/*", route)
+            page = ctx.new_page()
+            page.on("dialog", lambda d: (dialogs.append(d.message), d.dismiss()))
+            page.on("pageerror", lambda e: errors.append(str(e)))
+            page.goto("file://" + path)
+            page.wait_for_selector(".js-plotly-plot .main-svg", timeout=30000)
+            n_plots = page.locator(".js-plotly-plot").count()
+            n_lines = page.locator(".js-plotly-plot path.js-line").count()
+            cell = page.locator("table.shapes td", has_text="alert(1)").first.inner_text()
+            page.screenshot(path=os.path.join(tmp, "report.png"), full_page=False)
+        finally:
+            ctx.close()
+    assert external == []  # works offline: no request left the file
+    assert dialogs == [] and errors == []  # the channel name did not run as script
+    assert n_plots >= 3 and n_lines >= 3  # spectra, force and traces drawn with data
+    assert cell == EVIL  # shown as text
