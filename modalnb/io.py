@@ -327,7 +327,8 @@ def _read_csv(
             lines.append(reader.line_num)
     except csv.Error as exc:
         raise RecordError(f"{src}: line {reader.line_num} is not valid CSV ({exc}).") from None
-    assert header is not None  # text is not blank, so there is a first row
+    if header is None:
+        raise RecordError(f"{src}: the file holds only empty cells; no header row found.")
     for i, name in enumerate(header):
         if not name:
             raise RecordError(f"{src}: column {i + 1} of the header has no name.")
