@@ -433,3 +433,17 @@ def test_segmentation_drops_cut_off_first_record():
         ds = segment_recording(np.zeros((1, n)), fs, force=force, record_s=0.5, pretrigger_s=0.05)
     assert ds.sizes["hit"] == 1
     assert ds["time"].values[0] == pytest.approx(-0.05)
+
+
+def test_io_does_not_import_widget_stack():
+    # house rule 7: pure computation never imports ipywidgets or plotly, even indirectly;
+    # checked in a fresh interpreter so other tests' imports cannot mask it
+    import subprocess
+    import sys
+
+    code = (
+        "import sys, modalnb.io; bad = [m for m in ('ipywidgets', 'plotly', 'tqdm.auto') "
+        "if m in sys.modules]; print(bad); sys.exit(1 if bad else 0)"
+    )
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert done.returncode == 0, done.stdout + done.stderr
