@@ -328,8 +328,15 @@ class Analysis:
             raise ModalnbError("no recipe path: give one, e.g. save_recipe('tap.recipe.json').")
         return save_recipe(self.recipe, target)
 
-    def export(self, out_dir: str | os.PathLike[str], *, title: str | None = None) -> dict[str, Path]:
-        """Write the modal table files (CSV, netCDF, JSON, recipe) and ``report.html``.
+    def export(
+        self,
+        out_dir: str | os.PathLike[str],
+        *,
+        table: bool = True,
+        report: bool = True,
+        title: str | None = None,
+    ) -> dict[str, Path]:
+        """Write the modal table files (CSV, netCDF, JSON, recipe) and/or ``report.html``.
 
         Returns
         -------
@@ -342,11 +349,15 @@ class Analysis:
         from .report import write_report
 
         out = Path(out_dir)
-        files = write_modal_table(self.result, out, recipe=self.recipe, checks=self.checks)
-        files["report.html"] = write_report(
-            self.records, self.result, self.checks, out / "report.html",
-            title=title or f"modalnb: {self.source or 'record set'}",
-        )
+        files: dict[str, Path] = {}
+        if table:
+            files.update(write_modal_table(self.result, out, recipe=self.recipe, checks=self.checks))
+        if report:
+            out.mkdir(parents=True, exist_ok=True)
+            files["report.html"] = write_report(
+                self.records, self.result, self.checks, out / "report.html",
+                title=title or f"modalnb: {self.source or 'record set'}",
+            )
         return files
 
     # --- derived data for the views (plain numpy) ----------------------------------
@@ -427,6 +438,17 @@ class Analysis:
                 "r_squared": 1.0 - float(np.sum(r[c] ** 2)) / ss if ss > 0 else math.nan,
             })
         return rows
+
+    def stabilisation(self) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+        """Poles versus model order as ``(order, frequency_hz, stable)`` arrays, or None.
+
+        None when the estimation engine gives no such data with its result.
+        """
+        r = self.result
+        if r is None or "stab_order" not in r:
+            return None
+        return (np.asarray(r["stab_order"].values, float), np.asarray(r["stab_frequency_hz"].values, float),
+                np.asarray(r["stab_stable"].values, bool))
 
     def shapes(self) -> np.ndarray:
         """Complex shapes (mode, channel) from amplitude and phase of the result."""

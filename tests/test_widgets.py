@@ -1,0 +1,192 @@
+"""Headless tests of the notebook panels: set widget values / call the handlers plotly would
+call, then assert on the analysis state, the recipe on disk and the tables shown.
+
+Sources of the expected values: the recipe file read back by modalnb.recipe.load_recipe;
+the demo truth (demo_truth.json: hit 4 double hit, hit 6 clipped); the MAC definition
+(Allemang & Brown 1982: 1 on the diagonal); the stdlib csv reader for exported files.
+While ``modalnb.estimate.fit_modes`` is not importable the crude stand-in of
+tests/_standin_engine.py drives the state (see test_session.py).
+"""
+
+from __future__ import annotations
+
+import csv
+import re
+from types import SimpleNamespace
+
+import numpy as np
+import pytest
+from _standin_engine import engine
+
+import modalnb.estimate as estimate_pkg
+from modalnb.demo import load_demo, load_demo_truth
+from modalnb.recipe import load_recipe
+from modalnb.session import Analysis
+
+pytest.importorskip("ipywidgets")
+pytest.importorskip("plotly")
+
+from modalnb.widgets import HitPanel, WindowPanel, analysis_desk  # noqa: E402
+from modalnb.widgets._base import MAX_POINTS  # noqa: E402
+
+FIT, REAL_ENGINE = engine()
+
+
+@pytest.fixture(scope="module")
+def desk(tmp_path_factory):
+    with pytest.MonkeyPatch.context() as mp:
+        if not REAL_ENGINE:
+            mp.setattr(estimate_pkg, "fit_modes", FIT, raising=False)
+        path = tmp_path_factory.mktemp("desk") / "demo.recipe.json"
+        d = analysis_desk(load_demo(), recipe_path=path)
+        yield d
+        d.close()
+
+
+def _cells(html: str, cls: str) -> list[str]:
+    return re.findall(rf'class="{cls}">([^<]*)<', html)
+
+
+def test_window_slider_refits_and_moves_shading(desk):
+    a, p = desk.analysis, desk.window
+    damping_before = p.damping.value
+    p.slider.value = (0.02, 0.7)
+    assert a.recipe.window == (0.02, 0.7)
+    assert load_recipe(a.recipe_path).window == (0.02, 0.7)  # autosaved
+    assert (p.start.value, p.end.value) == (0.02, 0.7)  # boxes follow the slider
+    shape = p.fig.layout.shapes[0]
+    assert (shape.x0, shape.x1) == (0.02, 0.7)  # shaded window moved
+    assert p.damping.value != damping_before  # fitted damping shown changed
+
+
+def test_window_boxes_drive_slider(desk):
+    a, p = desk.analysis, desk.window
+    p.start.value = 0.03
+    assert a.recipe.window[0] == 0.03 and p.slider.value[0] == 0.03
+
+
+def test_window_box_order_error_is_shown_not_fitted(desk):
+    a, p = desk.analysis, desk.window
+    before = a.recipe
+    p.end.value = 0.01  # before the start
+    assert a.recipe == before
+    assert "modalnb-error" in p.status.value and "before its end" in p.status.value
+    p.end.value = before.window[1]  # put it back (no change, no refit needed)
+
+
+def test_failed_refit_shows_one_line_error_and_keeps_table(desk):
+    a, p = desk.analysis, desk.window
+    table_before = desk.table.modes.value
+    window_before = a.recipe.window
+    p.slider.value = (0.5, 0.5005)  # two samples: no fit
+    assert a.recipe.window == window_before
+    assert "modalnb-error" in p.status.value and "\n" not in a.error
+    assert p.slider.value == window_before  # controls back to the window in use
+    assert desk.table.modes.value == table_before
+    p.slider.value = (0.02, 0.9)
+    assert a.error is None and "modalnb-error" not in p.status.value
+
+
+def test_box_select_sets_window(desk):
+    a, p = desk.analysis, desk.window
+    # what plotly calls on a box selection: (trace, points, selector with xrange)
+    p._on_select(p.fig.data[0], None, SimpleNamespace(xrange=(0.025, 0.8)))
+    assert a.recipe.window == (0.025, 0.8)
+    assert p.slider.value == (0.025, 0.8)
+
+
+def test_log_view_and_decimation(desk):
+    p = desk.window
+    p.log.value = True
+    for tr in p.fig.data:  # what the screen can show (BROWSER.md), never the raw 8192 samples
+        assert 0 < len(tr.x) <= MAX_POINTS
+    # a decaying ring-down: the dB envelope falls over the record
+    y = np.asarray(p.fig.data[-1].y)
+    assert y[: y.size // 10].max() > y[-y.size // 10:].max() + 20
+    p.log.value = False
+    p.channel.value = "boom-6"
+    assert len(p.fig.data) == 1
+
+
+def test_hit_toggles_go_into_recipe_and_tables(desk):
+    a, p = desk.analysis, desk.hits
+    truth = load_demo_truth()
+    rows = p.table.value
+    # automatic decisions of the demo's bad hits (truth: double hit 4, clipped hit 6)
+    assert _cells(rows, f"modalnb-hitrow-{truth['double_hit']['hit']}-accepted") == ["no"]
+    assert _cells(rows, f"modalnb-hitrow-{truth['clipped_hit']['hit']}-accepted") == ["no"]
+    n = len(a.accepted_hits())
+    table_before = desk.table.modes.value
+    p.toggles[2].value = "reject"
+    assert a.recipe.hit_overrides == {2: False}
+    assert load_recipe(a.recipe_path).hit_overrides == {2: False}
+    assert re.search(r'modalnb-hit-count-value">(\d+)<', p.count.value).group(1) == str(n - 1)
+    assert _cells(p.table.value, "modalnb-hitrow-2-accepted") == ["no"]
+    assert desk.table.modes.value != table_before  # one hit fewer: a different table
+    assert _cells(desk.table.modes.value, "modalnb-table-nhits") == [str(n - 1)]
+    p.toggles[2].value = "automatic"
+    assert a.recipe.hit_overrides == {}
+    assert len(a.accepted_hits()) == n
+
+
+def test_band_and_mode_count(desk):
+    a, p = desk.modes, desk.modes
+    p.band.value = (20.0, 700.0)
+    assert desk.analysis.recipe.band == (20.0, 700.0)
+    f = np.asarray(p.fig.data[1].x)
+    assert f.size and np.all((f >= 20) & (f <= 700))  # only modes inside the band are marked
+    p.n_modes.value = 1
+    assert desk.analysis.recipe.n_modes == 1 and len(p.fig.data[1].x) == 1
+    p.n_modes.value = 0
+    p.auto_band.click()
+    assert desk.analysis.recipe.band is None and desk.analysis.recipe.n_modes is None
+    assert a.fig.layout.shapes[0].x1 == pytest.approx(0.45 * desk.analysis.sample_rate)
+
+
+def test_fit_panel_shows_model_and_quality(desk):
+    p = desk.fit
+    assert len(p.fig.data[0].x) > 10 and len(p.fig.data[1].x) > 10
+    t0, t1 = desk.analysis.fit_window()
+    assert min(p.fig.data[0].x) >= t0 - 1e-12 and max(p.fig.data[0].x) <= t1 + 1e-12
+    assert len(_cells(p.quality.value.replace("<td>", '<td class="q">'), "q")) == 3 * len(desk.analysis.channels)
+    first = list(p.fig.data[0].y)
+    p.channel.value = "boom-1"
+    assert list(p.fig.data[0].y) != first
+
+
+def test_table_mac_and_export(desk, tmp_path):
+    a, p = desk.analysis, desk.table
+    shown = [float(x) for x in _cells(p.modes.value, r"modalnb-mode-\d+-frequency_hz")]
+    np.testing.assert_allclose(shown, a.result["frequency_hz"].values, rtol=1e-5)  # 6 digits shown
+    np.testing.assert_allclose(np.diag(np.asarray(p.mac_fig.data[0].z)), 1.0, atol=1e-12)  # MAC(a, a) = 1
+    z = np.asarray(p.hitmac_fig.data[0].z)
+    assert z.shape == (len(a.accepted_hits()),) * 2
+    p.out_dir.value = str(tmp_path / "out")
+    p.b_table.click()
+    p.b_report.click()
+    with open(tmp_path / "out" / "modes.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    np.testing.assert_allclose([float(r["frequency_hz"]) for r in rows], a.result["frequency_hz"].values,
+                               rtol=1e-12)
+    assert (tmp_path / "out" / "report.html").stat().st_size > 100_000  # plotly.js embedded
+    assert "modalnb-written" in p.export_status.value
+    p.b_recipe.click()
+    assert load_recipe(a.recipe_path) == a.recipe
+
+
+def test_shape_plot_uses_node_coordinates(desk):
+    p = desk.table
+    assert p.shape_fig.data[0].type == "scatter3d"  # the demo has x, y, z per channel
+    np.testing.assert_allclose(p.shape_fig.data[0].x, desk.analysis.records["x"].values)
+
+
+def test_panels_work_alone(desk):
+    a = Analysis(desk.analysis.records, fit=False)
+    a.refit()
+    hp = HitPanel(a)
+    wp = WindowPanel(a)
+    assert len(hp.toggles) == len(a.hits)
+    assert wp.slider.value == a.fit_window()
+    hp.close()
+    wp.close()
+    assert a._listeners == []
