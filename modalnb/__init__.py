@@ -12,7 +12,16 @@ from importlib.metadata import PackageNotFoundError, version
 
 from . import accessor as _accessor  # noqa: F401  (registers ds.modalnb)
 from ._errors import EstimationError, ModalnbError, RecordError, RecordFileNotFoundError
-from .records import get_sample_rate, has_force, records_from_arrays, validate_records
+from .checks import check_hits, format_hit_report
+from .io import open_records, save_records, segment_recording
+from .recipe import Recipe, load_recipe, save_recipe
+from .records import (
+    get_sample_rate,
+    has_force,
+    records_checksum,
+    records_from_arrays,
+    validate_records,
+)
 
 try:
     __version__ = version("modalnb")
@@ -26,6 +35,18 @@ __all__ = (
     "records_from_arrays",
     "get_sample_rate",
     "has_force",
+    "records_checksum",
+    # io
+    "open_records",
+    "save_records",
+    "segment_recording",
+    # hit checks
+    "check_hits",
+    "format_hit_report",
+    # recipe
+    "Recipe",
+    "load_recipe",
+    "save_recipe",
     # errors
     "ModalnbError",
     "RecordError",

@@ -24,7 +24,7 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
-from ._errors import RecordError
+from ._errors import ModalnbError, RecordError
 from ._utils import did_you_mean
 
 __all__ = [
@@ -235,6 +235,19 @@ def has_force(ds: xr.Dataset) -> bool:
     return "force" in ds.data_vars
 
 
+def _real_array(values: Any, name: str) -> np.ndarray:
+    try:
+        raw = np.asarray(values)
+    except (TypeError, ValueError):
+        raise RecordError(f"`{name}` must be an array of real numbers.") from None
+    if np.iscomplexobj(raw):
+        raise RecordError(f"`{name}` holds complex numbers; records must be real. Hint: pass the real part.")
+    try:
+        return np.asarray(raw, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise RecordError(f"`{name}` must be an array of real numbers, its type is {raw.dtype}.") from None
+
+
 def records_from_arrays(
     response: Any,
     sample_rate: float,
@@ -292,11 +305,11 @@ def records_from_arrays(
     """
     from ._utils import check_positive
 
-    fs = check_positive("sample_rate", sample_rate)
     try:
-        r = np.asarray(response, dtype=np.float64)
-    except (TypeError, ValueError):
-        raise RecordError("`response` must be an array of real numbers.") from None
+        fs = check_positive("sample_rate", sample_rate)
+    except ModalnbError as exc:
+        raise RecordError(str(exc)) from None
+    r = _real_array(response, "response")
     if r.ndim == 1:
         r = r[None, None, :]
     elif r.ndim == 2:
@@ -336,10 +349,7 @@ def records_from_arrays(
             coords[axis] = ("channel", p[:, k], {"units": "m"})
     data_vars: dict[str, Any] = {"response": (DIMS, r, {"units": str(units)})}
     if force is not None:
-        try:
-            f = np.asarray(force, dtype=np.float64)
-        except (TypeError, ValueError):
-            raise RecordError("`force` must be an array of real numbers.") from None
+        f = _real_array(force, "force")
         if f.ndim == 1:
             f = f[None, :]
         if f.shape != (n_hit, n_t):
