@@ -69,7 +69,8 @@ def standin_fit_modes(records, band=None, window=None, n_modes=None, *, accept=N
     return xr.Dataset(
         {
             "frequency_hz": ("mode", fn), "damping_ratio": ("mode", zeta),
-            "frequency_hz_std": ("mode", fn * 1e-4), "damping_ratio_std": ("mode", zeta * 0.05),
+            "frequency_hz_std": ("mode", np.full(n_m, fs / nfft / np.sqrt(12))),  # bin quantisation
+            "damping_ratio_std": ("mode", zeta * 0.05),
             "regime": ("mode", ["underdamped"] * n_m), "status": ("mode", ["ok"] * n_m),
             "q_factor": ("mode", 1 / (2 * zeta)),
             "shape_amplitude": (("mode", "channel"), np.abs(shape)),
