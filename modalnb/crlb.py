@@ -241,9 +241,7 @@ def crlb_modes(
     if amp.shape[0] == 1 and ph.shape[0] > 1:
         amp = np.repeat(amp, ph.shape[0], axis=0)
     if amp.shape != ph.shape:
-        raise EstimationError(
-            f"`amplitude` has shape {amp.shape} but `phase_rad` has {ph.shape}."
-        )
+        raise EstimationError(f"`amplitude` has shape {amp.shape} but `phase_rad` has {ph.shape}.")
     n_ch = amp.shape[0]
     try:
         sd = np.broadcast_to(

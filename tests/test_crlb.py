@@ -100,8 +100,9 @@ def test_delta_method_matches_a_direct_physical_parametrisation() -> None:
     b = crlb_modes(t, f, z, a, phi, sigma)
     assert b.frequency_hz_std[0] == pytest.approx(np.sqrt(cov[0, 0]), rel=1e-4)
     assert b.damping_ratio_std[0] == pytest.approx(np.sqrt(cov[1, 1]), rel=1e-4)
-    assert b.covariance[0, 1] == pytest.approx(cov[0, 1], rel=1e-3, abs=1e-3 * np.sqrt(
-        cov[0, 0] * cov[1, 1]))
+    assert b.covariance[0, 1] == pytest.approx(
+        cov[0, 1], rel=1e-3, abs=1e-3 * np.sqrt(cov[0, 0] * cov[1, 1])
+    )
 
 
 def test_several_channels_add_their_information() -> None:
@@ -114,7 +115,9 @@ def test_several_channels_add_their_information() -> None:
     amps = np.array([1.0, 0.5, 2.0])
     noise = np.array([0.1, 0.05, 0.3])
     for phases, rel in ((np.full(3, 0.4), 1e-6), (np.array([0.4, -1.9, 2.7]), 0.01)):
-        singles = [crlb_modes(t, f, z, a, p, s) for a, p, s in zip(amps, phases, noise, strict=True)]
+        singles = [
+            crlb_modes(t, f, z, a, p, s) for a, p, s in zip(amps, phases, noise, strict=True)
+        ]
         both = crlb_modes(t, f, z, amps[:, None], phases[:, None], noise)
         for field in ("frequency_hz_std", "damping_ratio_std"):
             combined = combine_channel_bounds([getattr(s, field)[0] for s in singles])
@@ -196,7 +199,12 @@ def test_maximum_likelihood_fit_reaches_the_bound_single_mode() -> None:
     est = np.array(
         [
             _ml_fit(
-                t, (clean + sigma * rng.standard_normal(t.size))[None], [f], [z], [[a]], [[phi]],
+                t,
+                (clean + sigma * rng.standard_normal(t.size))[None],
+                [f],
+                [z],
+                [[a]],
+                [[phi]],
                 [sigma],
             )
             for _ in range(300)
