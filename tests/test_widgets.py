@@ -190,3 +190,26 @@ def test_panels_work_alone(desk):
     hp.close()
     wp.close()
     assert a._listeners == []
+
+
+def test_hit_panel_draws_pulse_and_spectrum(desk):
+    p = desk.hits
+    p.show_hit.value = 3
+    t_ms = np.asarray(p.force_fig.data[0].x)
+    f = np.asarray(p.force_fig.data[0].y)
+    peak = float(desk.analysis.checks["peak_force"].sel(hit=3))
+    assert f.max() == pytest.approx(peak, rel=0.02)  # the pulse drawn is the one the checks measured
+    assert t_ms.min() < 0 < t_ms.max()  # around the trigger, in ms
+    spec_db = np.asarray(p.force_fig.data[1].y)
+    assert spec_db.max() == pytest.approx(0.0, abs=1e-9)  # dB re its own peak
+    assert len(p.resp_fig.data) == len(desk.analysis.channels)
+
+
+def test_status_shows_progress_during_refit(desk):
+    seen = []
+    stop = desk.analysis.subscribe(lambda ev, a: seen.append((ev, desk.window.status.value)))
+    desk.analysis.refit()
+    stop()
+    # panels subscribed earlier than this listener, so their status was already updated
+    assert seen[0][0] == "busy" and "modalnb-busy" in seen[0][1] and "fitting" in seen[0][1]
+    assert seen[-1][0] == "result" and "modalnb-ok" in seen[-1][1]
