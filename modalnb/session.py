@@ -258,14 +258,23 @@ class Analysis:
 
     # --- the user's choices --------------------------------------------------------
     def set_window(self, t0: float | None, t1: float | None = None) -> bool:
-        """Fit window (absolute record times, s); ``set_window(None)`` = automatic."""
-        window = None if t0 is None else (float(t0), float(t1))  # type: ignore[arg-type]
-        return self._change(window=window)
+        """Fit window (absolute record times, s); ``set_window(None)`` = automatic.
+
+        Returns True when the refit worked; otherwise :attr:`error` says why and the
+        previous recipe and result stay.
+        """
+        return self._change(window=None if t0 is None else self._pair("window", t0, t1))
 
     def set_band(self, f0: float | None, f1: float | None = None) -> bool:
         """Frequency band (Hz); ``set_band(None)`` = automatic (0 to 0.45 fs)."""
-        band = None if f0 is None else (float(f0), float(f1))  # type: ignore[arg-type]
-        return self._change(band=band)
+        return self._change(band=None if f0 is None else self._pair("band", f0, f1))
+
+    @staticmethod
+    def _pair(name: str, a: Any, b: Any) -> Any:
+        try:
+            return (float(a), float(b))
+        except (TypeError, ValueError):
+            return [a, b]  # the recipe refuses it with a one-line message
 
     def set_n_modes(self, n: int | None) -> bool:
         """Number of modes to keep (strongest by energy); None = automatic."""

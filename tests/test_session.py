@@ -100,6 +100,7 @@ def test_bad_window_values_are_one_line_errors(demo):
     a = Analysis(demo)
     assert a.set_window(0.5, 0.1) is False  # low >= high: refused by the recipe
     assert "low < high" in a.error and "\n" not in a.error
+    assert a.set_band("ten", 100.0) is False and "two numbers" in a.error
 
 
 def test_reject_and_accept_hits_go_into_recipe(demo, tmp_path):
