@@ -182,6 +182,7 @@ class Analysis:
         self.checks: xr.Dataset | None = None
         self._listeners: list[Listener] = []
         self._spectrum: tuple[tuple[int, ...], np.ndarray, np.ndarray] | None = None
+        self._model_cache: tuple[tuple[int, int], Any] | None = None
         checksum = records_checksum(records)
         if recipe is not None and recipe.records_checksum and recipe.records_checksum != checksum:
             self.warning = (
@@ -323,7 +324,6 @@ class Analysis:
             return False
         self.busy = None
         self.recipe, self.result, self.checks, self.error = recipe, result, checks, None
-        self._spectrum = None
         if self.recipe_path is not None:
             save_recipe(recipe, self.recipe_path)
         self._notify("result")
@@ -427,11 +427,15 @@ class Analysis:
         """
         if self.result is None:
             raise ModalnbError("no result yet: the fit has not succeeded.")
+        key = (id(self.result), int(hit))
+        if self._model_cache is not None and self._model_cache[0] == key:
+            return self._model_cache[1]
         t0, t1 = self.fit_window()
         t = self.records["time"].values
         sel = (t >= t0) & (t <= t1)
         y = self.records["response"].sel(hit=int(hit)).values[:, sel]
         m, _ = refit_model(t[sel], y, _poles(self.result))
+        self._model_cache = (key, (t[sel], y, m))
         return t[sel], y, m
 
     def channel_quality(self, hit: int) -> list[dict[str, Any]]:
