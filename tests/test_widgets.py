@@ -70,8 +70,8 @@ def test_window_box_order_error_is_shown_not_fitted(desk):
     before = a.recipe
     p.end.value = 0.01  # before the start
     assert a.recipe == before
-    assert "modalnb-error" in p.status.value and "before its end" in p.status.value
-    p.end.value = before.window[1]  # put it back (no change, no refit needed)
+    assert "modalnb-error" in p.status.value and "low &lt; high" in p.status.value
+    assert (p.start.value, p.end.value) == before.window  # boxes back to the window in use
 
 
 def test_failed_refit_shows_one_line_error_and_keeps_table(desk):

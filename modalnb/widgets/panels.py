@@ -246,12 +246,9 @@ class WindowPanel(Panel):
         if self._syncing:
             return
         lo, hi = float(self.start.value), float(self.end.value)
-        if lo >= hi:
-            self.analysis.error = f"window start {lo:g} s must be before its end {hi:g} s."
-            self._show_status()
-            return
-        self._set_controls(lo, hi)
-        self.analysis.set_window(lo, hi)
+        if lo < hi:
+            self._set_controls(lo, hi)
+        self.analysis.set_window(lo, hi)  # the state refuses lo >= hi with a one-line error
 
     def _on_select(self, _trace: Any, _points: Any, selector: Any) -> None:
         xr_ = getattr(selector, "xrange", None)
