@@ -1,1 +1,15 @@
-"""Estimation engine (headless)."""
+"""Estimation engine (headless): shared-pole modal fits of ring-down record sets.
+
+* :func:`fit_modes`, :class:`ModeFit`: natural frequencies, damping ratios, shapes and
+  uncertainties (band-split matrix pencil + variable projection);
+* :func:`mac`, :func:`mac_matrix`, :func:`mpc`: shape comparison;
+* :func:`modal_conversions`: damping measures, stiffness and damping coefficient.
+"""
+
+from __future__ import annotations
+
+from ._convert import modal_conversions
+from ._fit import ModeFit, fit_modes
+from ._shapes import mac, mac_matrix, mpc
+
+__all__ = ("fit_modes", "modal_conversions", "mac", "mac_matrix", "mpc", "ModeFit")

@@ -1,0 +1,102 @@
+"""Decaying-mode basis functions, continuous through critical damping.
+
+A mode is described by its decay rate ``sigma = zeta * wn`` (1/s) and the signed square
+``u = wd**2`` of its damped angular frequency (``u < 0`` for an overdamped pair, whose
+poles are ``-sigma +- sqrt(-u)``). Its free response is spanned by
+
+* ``exp(-sigma t) C(t)`` with ``C = cos(sqrt(u) t)`` (u > 0) or ``cosh(sqrt(-u) t)`` (u < 0),
+* ``exp(-sigma t) S(t)`` with ``S = sin(sqrt(u) t)/sqrt(u)`` or ``sinh(sqrt(-u) t)/sqrt(-u)``,
+
+which tend to ``exp(-sigma t)`` and ``t exp(-sigma t)`` at ``u = 0``: the repeated real
+pole basis ``(A + B t) exp(s t)`` (Fermo, van der Mee & Seatzu 2013). Hyperbolic terms are
+evaluated as differences of decaying exponentials so nothing overflows.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+#: Below this value of |u| t_max**2 the series form is used (error ~ x**3/720).
+SERIES_LIMIT = 1e-4
+
+
+def mode_columns(t: np.ndarray, sigma: float, u: float) -> tuple[np.ndarray, np.ndarray]:
+    """The two basis functions of one mode at times `t` (s, from the window start)."""
+    tmax = float(t[-1]) if t.size else 0.0
+    x = u * tmax * tmax
+    if abs(x) < SERIES_LIMIT:
+        e = np.exp(-sigma * t)
+        t2u = u * t * t
+        c = e * (1.0 + t2u / 2.0 + t2u * t2u / 24.0)
+        s = e * t * (1.0 + t2u / 6.0 + t2u * t2u / 120.0)
+        return c, s
+    if u > 0:
+        w = np.sqrt(u)
+        e = np.exp(-sigma * t)
+        wt = w * t
+        return e * np.cos(wt), e * np.sin(wt) / w
+    w = np.sqrt(-u)
+    a = np.exp((w - sigma) * t)
+    b = np.exp((-w - sigma) * t)
+    return 0.5 * (a + b), 0.5 * (a - b) / w
+
+
+def basis_matrix(
+    t: np.ndarray, sigma: np.ndarray, u: np.ndarray, n_extra: int = 1
+) -> np.ndarray:
+    """Design matrix (N, 2M + n_extra): mode columns, then offset (and drift) columns."""
+    m = len(sigma)
+    out = np.empty((t.size, 2 * m + n_extra))
+    for k in range(m):
+        out[:, 2 * k], out[:, 2 * k + 1] = mode_columns(t, float(sigma[k]), float(u[k]))
+    if n_extra >= 1:
+        out[:, 2 * m] = 1.0
+    if n_extra >= 2:
+        out[:, 2 * m + 1] = t / (t[-1] if t[-1] > 0 else 1.0)
+    return out
+
+
+def residues_from_coefficients(
+    a: np.ndarray, b: np.ndarray, sigma: float, u: float
+) -> np.ndarray:
+    """Complex residue(s) of the mode from its basis coefficients ``a C + b S``.
+
+    Oscillating (u > 0): ``x = 2 Re(r exp(lambda t))`` with ``lambda = -sigma + j sqrt(u)``
+    gives ``r = (a - j b / sqrt(u)) / 2``. Non-oscillating (u < 0): the (real) residue of
+    the slower pole ``-sigma + sqrt(-u)``, ``a/2 + b/(2 sqrt(-u))``. Near ``u = 0`` the
+    residues diverge, so the repeated-pole form ``(a + b t) exp(-sigma t)`` is summarised
+    by its value at ``t = 1/sigma``: ``a + b / sigma`` (real).
+    """
+    a = np.asarray(a, float)
+    b = np.asarray(b, float)
+    if u > 0 and not is_near_critical(sigma, u):
+        return (a - 1j * b / np.sqrt(u)) / 2.0
+    if u < 0 and not is_near_critical(sigma, u):
+        w = np.sqrt(-u)
+        return (a / 2.0 + b / (2.0 * w)) + 0j
+    return (a + b / max(sigma, 1e-300)) + 0j
+
+
+def is_near_critical(sigma: float, u: float, tol: float = 0.02) -> bool:
+    """True when |zeta - 1| <= tol (|wd| small compared with sigma)."""
+    wn2 = sigma * sigma + u
+    if wn2 <= 0:
+        return False
+    zeta = sigma / np.sqrt(wn2)
+    return abs(zeta - 1.0) <= tol
+
+
+def pole_of(sigma: float, u: float) -> complex:
+    """Continuous-time pole: ``-sigma + j sqrt(u)`` (u >= 0), slower real pole otherwise."""
+    if u >= 0:
+        return complex(-sigma, np.sqrt(u))
+    return complex(-sigma + np.sqrt(-u), 0.0)
+
+
+def natural(sigma: float, u: float) -> tuple[float, float]:
+    """(wn, zeta) from (sigma, u): ``wn**2 = sigma**2 + u``, ``zeta = sigma / wn``."""
+    wn2 = sigma * sigma + u
+    if wn2 <= 0:
+        return float("nan"), float("nan")
+    wn = float(np.sqrt(wn2))
+    return wn, float(sigma / wn)

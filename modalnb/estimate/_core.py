@@ -1,0 +1,180 @@
+"""Array-level engine: signals in, shared poles with covariance out.
+
+Steps (documented in :func:`modalnb.estimate.fit_modes`): compress the stacked signals to
+their leading principal components (the shared poles live in the row space), find
+candidate poles with band-split matrix pencils, refine them by variable projection,
+drop modes that carry no more energy than noise would, and compute the covariance.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from ._basis import natural
+from ._pencil import PencilOutput, find_poles, initial_modes
+from ._varpro import Problem, covariance, levenberg_marquardt, natural_with_cov, run_lmfit
+
+#: Most principal components kept for the fit (the signal rank is 2 per mode).
+MAX_COMPONENTS = 32
+
+
+@dataclass
+class CoreResult:
+    x: np.ndarray  # packed (sigma, u) per mode
+    prob: Problem  # compressed problem (for refits)
+    cov: np.ndarray
+    fn: np.ndarray
+    zeta: np.ndarray
+    fn_std: np.ndarray
+    zeta_std: np.ndarray
+    sigma: np.ndarray
+    u: np.ndarray
+    significance: np.ndarray
+    s2: float
+    rss: float
+    n_tot: int
+    minimizer: Any
+    pencil: PencilOutput | None
+    notes: list[str] = field(default_factory=list)
+
+
+def compress(y: np.ndarray, max_components: int = MAX_COMPONENTS) -> np.ndarray:
+    """Leading principal-component signals (r, N) of `y` (P, N): ``U_r^T y``."""
+    p = y.shape[0]
+    if p <= max_components:
+        return y
+    gram = y @ y.T
+    w, v = np.linalg.eigh(gram)
+    top = v[:, np.argsort(w)[::-1][:max_components]]
+    return top.T @ y
+
+
+def significance_threshold(r: int) -> float:
+    """Least energy / noise variance for a mode fitted to `r` signals (common practice).
+
+    The energy a spurious mode takes from white noise is roughly chi-squared with 2r + 2
+    degrees of freedom plus a search gain; the threshold sits several standard
+    deviations above it.
+    """
+    return 2.0 * r + 8.0 * np.sqrt(2.0 * r) + 30.0
+
+
+def _mode_energy(prob: Problem, x: np.ndarray) -> np.ndarray:
+    phi = prob.basis(x)
+    coef, *_ = np.linalg.lstsq(phi, prob.data_t, rcond=None)
+    m = x.size // 2
+    e = np.empty(m)
+    for k in range(m):
+        part = phi[:, 2 * k : 2 * k + 2] @ coef[2 * k : 2 * k + 2]
+        e[k] = float(np.sum(part**2))
+    return e
+
+
+def full_rss(y_t: np.ndarray, prob: Problem, x: np.ndarray) -> float:
+    """Residual sum of squares of the full (uncompressed) data (N, P) at `x`."""
+    q, _ = np.linalg.qr(prob.basis(x))
+    proj = q.T @ y_t
+    return float(max(np.sum(y_t**2) - np.sum(proj**2), 0.0))
+
+
+def _valid(prob: Problem, x: np.ndarray, fs: float) -> np.ndarray:
+    sigma, u = prob.unpack(x)
+    ok = np.ones(sigma.size, bool)
+    for k in range(sigma.size):
+        wn, z = natural(sigma[k], u[k])
+        ok[k] = np.isfinite(wn) and sigma[k] > 0 and wn < np.pi * fs and z > 0
+        if u[k] < 0 and sigma[k] - np.sqrt(-u[k]) <= 0:
+            ok[k] = False
+    return ok
+
+
+def fit_core(
+    y: np.ndarray,
+    t: np.ndarray,
+    fs: float,
+    *,
+    f_max: float,
+    x0: np.ndarray | None = None,
+    max_order: int | None = None,
+    n_extra: int = 1,
+    max_nfev: int | None = None,
+) -> CoreResult:
+    """Shared poles of the weighted signals `y` (P, N) at times `t` from the window start.
+
+    With `x0` (packed poles of an earlier fit) the pencil is skipped (fast refit).
+    """
+    from .._errors import EstimationError
+
+    y_t_full = np.ascontiguousarray(y.T)
+    d = compress(y, MAX_COMPONENTS if x0 is None else min(MAX_COMPONENTS, len(x0) + 4))
+    r = d.shape[0]
+    w_scale = 2 * np.pi * fs / 10.0
+    prob = Problem(np.ascontiguousarray(d.T), t, w_scale, n_extra)
+    pencil = None
+    notes: list[str] = []
+    if x0 is None:
+        pencil = find_poles(d, fs, f_max, max_order=max_order)
+        modes = initial_modes(pencil.candidates, fs)
+        if not modes:
+            raise EstimationError(
+                "no mode found above the noise in the searched band. Hint: check the "
+                "window (it should hold the ring-down), the band, or the hit selection."
+            )
+        x0 = prob.pack(np.array([m[0] for m in modes]), np.array([m[1] for m in modes]))
+    thr = significance_threshold(r)
+    x = np.asarray(x0, float)
+    res = None
+    for _ in range(12):
+        x, _ = levenberg_marquardt(prob, x)
+        ok = _valid(prob, x, fs)
+        energy = _mode_energy(prob, x)
+        n_tot = y.size
+        n_lin = y.shape[0] * (x.size + n_extra)
+        rss = full_rss(y_t_full, prob, x)
+        s2 = rss / max(n_tot - n_lin - x.size, 1)
+        signif = energy / max(s2, 1e-300)
+        # duplicates: two modes converged onto one pole
+        sigma, u = prob.unpack(x)
+        dup = np.zeros(sigma.size, bool)
+        for i in range(sigma.size):
+            for j in range(i):
+                if dup[j] or dup[i]:
+                    continue
+                li = complex(-sigma[i], np.sqrt(abs(u[i])))
+                lj = complex(-sigma[j], np.sqrt(abs(u[j])))
+                if abs(li - lj) < 1e-4 * max(abs(li), abs(lj)):
+                    dup[i if signif[i] < signif[j] else j] = True
+        drop = ~ok | dup
+        weak = signif < thr
+        if not drop.any() and not weak.any():
+            break
+        if drop.any():
+            keep = ~drop
+        else:
+            # drop every mode far below the threshold, else the weakest one
+            far = signif < thr / 4
+            keep = ~far if far.any() else np.arange(signif.size) != int(np.argmin(signif))
+        if not keep.any():
+            raise EstimationError(
+                "no mode found above the noise in the searched band. Hint: check the "
+                "window (it should hold the ring-down), the band, or the hit selection."
+            )
+        idx = np.repeat(np.nonzero(keep)[0] * 2, 2) + np.tile([0, 1], int(keep.sum()))
+        x = x[idx]
+    # final polish with lmfit (a converged start: few evaluations); users get its result
+    res, x_l = run_lmfit(prob, x, max_nfev=max_nfev or 10 * (x.size + 1))
+    if float(np.sum(prob.residual(x_l) ** 2)) <= float(np.sum(prob.residual(x) ** 2)):
+        x = x_l
+        rss = full_rss(y_t_full, prob, x)
+        s2 = rss / max(n_tot - n_lin - x.size, 1)
+    cov = covariance(prob, x, rss, n_tot, n_lin)
+    fn, zeta, fn_std, zeta_std = natural_with_cov(prob, x, cov)
+    sigma, u = prob.unpack(x)
+    return CoreResult(
+        x=x, prob=prob, cov=cov, fn=fn, zeta=zeta, fn_std=fn_std, zeta_std=zeta_std,
+        sigma=sigma, u=u, significance=signif, s2=s2, rss=rss, n_tot=n_tot,
+        minimizer=res, pencil=pencil, notes=notes,
+    )

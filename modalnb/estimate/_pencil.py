@@ -1,0 +1,286 @@
+"""Initial poles: multi-signal matrix pencil / ESPRIT with band splitting.
+
+The poles shared by all signals are the shift-invariant structure of the column space of
+the stacked Hankel matrix ``H = [H_1 ... H_P]`` (matrix pencil, Hua & Sarkar 1990; the same
+shift invariance as Kung, Arun & Bhaskar Rao 1983 and ESPRIT, Roy & Kailath 1989):
+``z = eig(pinv(U[:-1]) U[1:])`` with ``U`` the leading left singular vectors of ``H``.
+
+Two passes keep the Hankel matrices small:
+
+* sub-bands: each band of the spectrum is shifted to 0 Hz, tapered and resampled at a low
+  rate (complex demodulation through the FFT), so each pencil sees only a few poles and
+  has the full record length for resolution;
+* a wide-band pass on the first few hundred samples at the full rate catches heavily
+  damped and non-oscillating (real) poles, whose spectra are too wide for a sub-band.
+
+Orders are over-specified and swept; every pole at every order is kept for the
+stabilisation chart. Candidates are the poles that are stable across orders and carry
+energy ``E_k = sum_c |r_ck|^2 sum_n |z_k|^(2n)`` well above the noise.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+TWO_PI = 2.0 * np.pi
+
+
+@dataclass
+class Candidate:
+    """A continuous-time pole found by a pencil, with its significance."""
+
+    lam: complex
+    significance: float
+    source: str
+
+
+@dataclass
+class PencilOutput:
+    """Candidates and the stabilisation records of every order swept."""
+
+    candidates: list[Candidate] = field(default_factory=list)
+    # rows of (pass id, order, frequency_hz (damped), natural_hz, damping_ratio, stable)
+    rows: list[tuple[int, int, float, float, float, bool]] = field(default_factory=list)
+
+
+def _signal_space(sig: np.ndarray, k_rows: int, n_vec: int) -> tuple[np.ndarray, np.ndarray]:
+    """Leading left singular vectors (k_rows, n_vec) and singular values of stacked Hankels."""
+    from numpy.lib.stride_tricks import sliding_window_view
+
+    n = sig.shape[-1]
+    n_cols = n - k_rows + 1
+    gram = np.zeros((k_rows, k_rows), dtype=sig.dtype)
+    for row in sig:
+        h = sliding_window_view(row, n_cols)  # (k_rows, n_cols), h[i, j] = row[i + j]
+        gram += h @ h.conj().T
+    w, v = np.linalg.eigh(gram)
+    order = np.argsort(w)[::-1]
+    w = np.clip(w[order], 0.0, None)
+    return v[:, order[:n_vec]], np.sqrt(w)
+
+
+def _shift_poles(u: np.ndarray) -> np.ndarray:
+    """Discrete poles from the shift invariance of the column space (least squares)."""
+    psi, *_ = np.linalg.lstsq(u[:-1], u[1:], rcond=None)
+    return np.linalg.eigvals(psi)
+
+
+def _energies(sig: np.ndarray, z: np.ndarray) -> tuple[np.ndarray, float]:
+    """Energy of each pole (summed over signals) and residual variance per sample."""
+    n = sig.shape[-1]
+    nn = np.arange(n)
+    with np.errstate(over="ignore", invalid="ignore", under="ignore"):
+        vand = np.power(z[None, :], nn[:, None])
+    vand = np.where(np.isfinite(vand), vand, 0.0)
+    coef, *_ = np.linalg.lstsq(vand, sig.T, rcond=None)
+    resid = sig.T - vand @ coef
+    dof = max(sig.size - coef.size, 1)
+    var = float(np.sum(np.abs(resid) ** 2) / dof)
+    zmag2 = np.abs(z) ** 2
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        geo = np.where(np.abs(1 - zmag2) > 1e-12, (1 - zmag2**n) / (1 - zmag2), n)
+    energy = np.sum(np.abs(coef) ** 2, axis=1) * np.abs(geo)
+    return energy, var
+
+
+def _natural(lam: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    wn = np.abs(lam)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        zeta = np.where(wn > 0, -lam.real / wn, np.nan)
+    return wn / TWO_PI, zeta
+
+
+def _sweep(
+    sig: np.ndarray,
+    dt: float,
+    shift_hz: float,
+    orders: list[int],
+    k_rows: int,
+    pass_id: int,
+    out: PencilOutput,
+    accept: callable,
+    real_data: bool,
+) -> None:
+    """Sweep orders of one pencil; append rows and the candidates of the top order."""
+    if sig.shape[0] > 8:
+        # only a few poles per pass: keep the leading components of this pass's signals
+        g = sig @ sig.conj().T
+        w, v = np.linalg.eigh(g)
+        sig = v[:, np.argsort(w)[::-1][:8]].conj().T @ sig
+    u, _sv = _signal_space(sig, k_rows, max(orders))
+    prev: np.ndarray | None = None
+    per_order: list[np.ndarray] = []
+    for m in orders:
+        z = _shift_poles(u[:, :m])
+        with np.errstate(divide="ignore"):
+            lam = np.log(z.astype(complex)) / dt + 1j * TWO_PI * shift_hz
+        keep = (np.abs(z) < 1.0) & (np.abs(z) > 0)
+        if real_data:
+            keep &= lam.imag >= -1e-9 * np.abs(lam)
+        lam = lam[keep]
+        fn, zeta = _natural(lam)
+        stable = np.zeros(lam.size, bool)
+        if prev is not None and prev.size:
+            for i, lk in enumerate(lam):
+                d = np.abs(prev - lk)
+                j = int(np.argmin(d))
+                tol = max(0.01 * abs(lk), 0.05 * abs(lk.real))
+                stable[i] = d[j] <= tol
+        for lk, f, zz, st in zip(lam, fn, zeta, stable, strict=True):
+            out.rows.append((pass_id, m, float(lk.imag / TWO_PI), float(f), float(zz), bool(st)))
+        per_order.append(lam)
+        prev = lam
+    # candidates: top-order poles that reappear (within tolerance) in the two orders below
+    top = per_order[-1]
+    if top.size == 0:
+        return
+    ztop = np.exp((top - 1j * TWO_PI * shift_hz) * dt)
+    energy, var = _energies(sig, ztop)
+    var = max(var, 1e-300)
+    for i, lk in enumerate(top):
+        hits = 0
+        for lower in per_order[-3:-1]:
+            if lower.size and np.min(np.abs(lower - lk)) <= max(0.01 * abs(lk), 0.1 * abs(lk.real)):
+                hits += 1
+        if hits < min(2, len(per_order) - 1):
+            continue
+        if not accept(lk):
+            continue
+        out.candidates.append(Candidate(complex(lk), float(energy[i] / var), f"pass{pass_id}"))
+
+
+def find_poles(
+    data: np.ndarray,
+    fs: float,
+    f_max: float,
+    *,
+    max_order: int | None = None,
+    min_significance: float | None = None,
+) -> PencilOutput:
+    """Candidate poles of the signals `data` (P, N), sampled at `fs`, below `f_max` Hz.
+
+    Parameters
+    ----------
+    data : ndarray
+        Real signals (already weighted and compressed), time from the window start.
+    fs : float
+        Sample rate (Hz).
+    f_max : float
+        Highest damped frequency searched (Hz).
+    max_order : int, optional
+        Highest pencil order per pass (default 20 per sub-band, 40 wide-band).
+    min_significance : float
+        Least pole energy over the noise variance per sample for a candidate
+        (default: 3 times the threshold of the refinement stage, common practice).
+    """
+    from ._core import significance_threshold
+
+    p, n = data.shape
+    dt = 1.0 / fs
+    t_len = n * dt
+    out = PencilOutput()
+    data = data - data.mean(axis=1, keepdims=True)
+    # ---- sub-bands (complex demodulation through the FFT)
+    n_target = 360
+    width = max(n_target / (1.6 * t_len), 4.0 / t_len)
+    n_bands = max(1, int(np.ceil(f_max / width)))
+    width = f_max / n_bands
+    margin = 0.25 * width
+    nfft = int(2 ** np.ceil(np.log2(2 * n)))
+    spec = np.fft.fft(data, nfft, axis=1)
+    df = fs / nfft
+    freqs = np.fft.fftfreq(nfft, dt)
+    order_sub = max_order or 20
+    for b in range(n_bands):
+        lo, hi = b * width, (b + 1) * width
+        fc = 0.5 * (lo + hi)
+        sel_lo, sel_hi = lo - margin, hi + margin
+        idx = np.nonzero((freqs >= sel_lo) & (freqs <= sel_hi))[0]
+        if idx.size < 8:
+            continue
+        f_sel = freqs[idx]
+        taper = np.ones(idx.size)
+        left = f_sel < lo
+        taper[left] = 0.5 - 0.5 * np.cos(np.pi * (f_sel[left] - sel_lo) / margin)
+        right = f_sel > hi
+        taper[right] = 0.5 - 0.5 * np.cos(np.pi * (sel_hi - f_sel[right]) / margin)
+        n_base = int(np.ceil(1.25 * idx.size))
+        base = np.zeros((p, n_base), complex)
+        k_c = int(round(fc / df))
+        pos = (np.round(f_sel / df).astype(int) - k_c) % n_base
+        base[:, pos] = spec[:, idx] * taper
+        sig = np.fft.ifft(base, axis=1)
+        dt_b = nfft / (fs * n_base)
+        n_keep = int(np.floor(t_len / dt_b))
+        skip = int(np.ceil(1.0 / (margin * dt_b)))
+        sig = sig[:, skip : max(n_keep - skip, skip)]
+        nb = sig.shape[1]
+        if nb < 24:
+            continue
+        k_rows = max(8, min(nb // 3, 4 * order_sub))
+        top = min(order_sub, k_rows - 2)
+        orders = list(range(max(1, top - 8), top + 1))
+
+        def accept_sub(lk: complex, lo: float = lo, hi: float = hi) -> bool:
+            fd = lk.imag / TWO_PI
+            return lo <= fd < hi and lk.real < 0 and -lk.real < 2.0 * abs(lk.imag) + 1e-12
+
+        _sweep(sig, dt_b, k_c * df, orders, k_rows, b + 1, out, accept_sub, real_data=False)
+    # ---- wide band, full rate, start of the record: heavy damping and real poles
+    n_w = min(n, 600)
+    k_w = n_w // 3
+    order_w = min(max_order * 2 if max_order else 40, k_w - 2)
+    orders_w = list(range(max(2, order_w - 10), order_w + 1, 2))
+
+    def accept_wide(lk: complex) -> bool:
+        fn = abs(lk) / TWO_PI
+        if lk.real >= 0 or fn > 0.5 * fs:
+            return False
+        zeta = -lk.real / abs(lk)
+        slow = -lk.real * t_len < 0.5  # decays less than e^-0.5 over the window: drift
+        return zeta >= 0.3 and not slow
+
+    _sweep(data[:, :n_w], dt, 0.0, orders_w, k_w, 0, out, accept_wide, real_data=True)
+    if min_significance is None:
+        min_significance = 3.0 * significance_threshold(min(p, 8))
+    out.candidates = [c for c in out.candidates if c.significance >= min_significance]
+    return out
+
+
+def initial_modes(cands: list[Candidate], fs: float) -> list[tuple[float, float]]:
+    """Turn candidate poles into (sigma, u) mode starts, pairing real poles.
+
+    Oscillating poles give ``(sigma, wd**2)``; near-duplicates (same pole from two passes)
+    are merged, keeping the more significant. Real poles are paired, strongest first, into
+    non-oscillating modes ``sigma = -(s1 + s2)/2``, ``u = -((s1 - s2)/2)**2``; a real pole
+    left without a partner starts as an overdamped pair with a partner 4 times faster.
+    """
+    cands = sorted(cands, key=lambda c: -c.significance)
+    kept: list[Candidate] = []
+    for c in cands:
+        dup = False
+        for k in kept:
+            tol = max(0.5 * max(-c.lam.real, -k.lam.real), 0.003 * abs(c.lam), TWO_PI * 1e-3 * fs / 1e3)
+            if abs(c.lam - k.lam) < tol:
+                dup = True
+                break
+        if not dup:
+            kept.append(c)
+    modes: list[tuple[float, float]] = []
+    reals: list[float] = []
+    for c in kept:
+        lam = c.lam
+        if abs(lam.imag) < 1e-6 * abs(lam):
+            reals.append(lam.real)
+        else:
+            modes.append((-lam.real, lam.imag**2))
+    while len(reals) >= 2:
+        s1, s2 = reals.pop(0), reals.pop(0)
+        modes.append((-(s1 + s2) / 2.0, -(((s1 - s2) / 2.0) ** 2)))
+    if reals:
+        s1 = reals[0]
+        s2 = 4.0 * s1
+        modes.append((-(s1 + s2) / 2.0, -(((s1 - s2) / 2.0) ** 2)))
+    return modes

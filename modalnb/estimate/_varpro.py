@@ -1,0 +1,238 @@
+"""Variable projection: poles shared by all signals, residues solved linearly inside.
+
+The objective is ``sum_c ||(I - Phi Phi^+) y_c||^2`` over the nonlinear parameters only
+(Golub & Pereyra 1973; several data sets sharing the nonlinear parameters: Golub &
+LeVeque 1979). ``Phi`` holds two columns per mode (see :mod:`._basis`) and an offset
+column. The covariance of the poles is ``s^2 (J^T J)^-1`` with ``J`` the Jacobian of the
+projected residual (the VARPRO Jacobian, whose normal matrix is the Schur complement of
+the full one, so the linear parameters are accounted for) and ``s^2 = RSS/(N_tot - p)``
+where ``p`` counts the poles and every linear coefficient.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ._basis import basis_matrix, natural
+
+
+@dataclass
+class Problem:
+    """Data of one VARPRO fit: signals (P, N) in weighted units, times from the window start."""
+
+    data_t: np.ndarray  # (N, P) contiguous, the signals as columns
+    t: np.ndarray  # (N,)
+    w_scale: float  # angular-frequency scale of the parameters (rad/s)
+    n_extra: int = 1
+
+    def unpack(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        x = np.asarray(x, float)
+        return x[0::2] * self.w_scale, x[1::2] * self.w_scale**2
+
+    def pack(self, sigma: np.ndarray, u: np.ndarray) -> np.ndarray:
+        x = np.empty(2 * len(sigma))
+        x[0::2] = np.asarray(sigma) / self.w_scale
+        x[1::2] = np.asarray(u) / self.w_scale**2
+        return x
+
+    def basis(self, x: np.ndarray) -> np.ndarray:
+        sigma, u = self.unpack(x)
+        return basis_matrix(self.t, sigma, u, self.n_extra)
+
+    def residual(self, x: np.ndarray) -> np.ndarray:
+        phi = self.basis(x)
+        q, _ = np.linalg.qr(phi)
+        r = self.data_t - q @ (q.T @ self.data_t)
+        return r.ravel()
+
+    def jacobian(self, x: np.ndarray) -> np.ndarray:
+        """Central-difference Jacobian of the projected residual (N*P, n_params)."""
+        x = np.asarray(x, float)
+        cols = []
+        for i in range(x.size):
+            h = 1e-6 * max(abs(x[i]), 1e-3)
+            xp, xm = x.copy(), x.copy()
+            xp[i] += h
+            xm[i] -= h
+            cols.append((self.residual(xp) - self.residual(xm)) / (2 * h))
+        return np.stack(cols, axis=1)
+
+    def kaufman_jacobian(self, x: np.ndarray) -> np.ndarray:
+        """Jacobian of the projected residual in Kaufman's (1975) form (N*P, n_params).
+
+        ``J_j = -(I - Q Q^T) (dPhi/dx_j) c`` with ``c`` the least-squares coefficients; the
+        second (residual-sized) term of Golub & Pereyra is dropped, as Kaufman proposed.
+        """
+        from ._basis import mode_columns
+
+        x = np.asarray(x, float)
+        sigma, u = self.unpack(x)
+        phi = basis_matrix(self.t, sigma, u, self.n_extra)
+        q, rr = np.linalg.qr(phi)
+        qtd = q.T @ self.data_t
+        coef = np.linalg.solve(rr, qtd) if np.all(np.abs(np.diag(rr)) > 0) else np.linalg.lstsq(
+            phi, self.data_t, rcond=None)[0]
+        n, p = self.data_t.shape
+        jac = np.empty((n * p, x.size), order="F")
+        t = self.t
+        for k in range(sigma.size):
+            c0, c1 = phi[:, 2 * k], phi[:, 2 * k + 1]
+            a, b = coef[2 * k], coef[2 * k + 1]
+            # d/dsigma of exp(-sigma t) f(t) is -t exp(-sigma t) f(t); packed: * w_scale
+            ds = -(t * c0)[:, None] * a[None, :] - (t * c1)[:, None] * b[None, :]
+            ds *= self.w_scale
+            hu = 1e-6 * max(abs(u[k]), 1e-6 * self.w_scale**2)
+            p0, p1 = mode_columns(t, sigma[k], u[k] + hu)
+            m0, m1 = mode_columns(t, sigma[k], u[k] - hu)
+            du = ((p0 - m0) / (2 * hu))[:, None] * a[None, :] + ((p1 - m1) / (2 * hu))[
+                :, None] * b[None, :]
+            du *= self.w_scale**2
+            for j, g in ((2 * k, ds), (2 * k + 1, du)):
+                g = g - q @ (q.T @ g)
+                jac[:, j] = -g.ravel()
+        return jac
+
+    def coefficients(self, x: np.ndarray, data_t: np.ndarray | None = None) -> np.ndarray:
+        """Linear coefficients (n_cols, P) by least squares at parameters `x`."""
+        phi = self.basis(x)
+        d = self.data_t if data_t is None else data_t
+        coef, *_ = np.linalg.lstsq(phi, d, rcond=None)
+        return coef
+
+
+def gauss_newton(prob: Problem, x: np.ndarray, steps: int = 3) -> np.ndarray:
+    """A few damped Gauss-Newton steps of the projected problem from `x` (used per hit)."""
+    x = np.asarray(x, float).copy()
+    cost = float(np.sum(prob.residual(x) ** 2))
+    for _ in range(steps):
+        j = prob.jacobian(x)
+        r = prob.residual(x)
+        try:
+            dx, *_ = np.linalg.lstsq(j, -r, rcond=None)
+        except np.linalg.LinAlgError:
+            break
+        lam = 1.0
+        for _ in range(6):
+            xn = x + lam * dx
+            cn = float(np.sum(prob.residual(xn) ** 2))
+            if cn <= cost:
+                x, cost = xn, cn
+                break
+            lam *= 0.5
+        else:
+            break
+    return x
+
+
+def levenberg_marquardt(
+    prob: Problem, x: np.ndarray, max_iter: int = 60, rtol: float = 1e-9
+) -> tuple[np.ndarray, int]:
+    """Levenberg-Marquardt on the projected residual with Kaufman's Jacobian.
+
+    Works on the normal equations (the Jacobian has few columns), with Marquardt's
+    diagonal scaling (Marquardt 1963). Returns the parameters and the iterations used.
+    """
+    x = np.asarray(x, float).copy()
+    r = prob.residual(x)
+    cost = float(r @ r)
+    mu = 1e-3
+    it = 0
+    for _ in range(max_iter):
+        it += 1
+        j = prob.kaufman_jacobian(x)
+        jtj = j.T @ j
+        g = j.T @ r
+        d = np.diag(jtj).copy()
+        d[d <= 0] = 1.0
+        improved = False
+        for _ in range(12):
+            a = jtj + mu * np.diag(d)
+            try:
+                dx = -np.linalg.solve(a, g)
+            except np.linalg.LinAlgError:
+                mu *= 10
+                continue
+            xn = x + dx
+            rn = prob.residual(xn)
+            cn = float(rn @ rn)
+            if np.isfinite(cn) and cn <= cost:
+                improved = True
+                rel = (cost - cn) / max(cost, 1e-300)
+                x, r, cost = xn, rn, cn
+                mu = max(mu / 5, 1e-12)
+                break
+            mu *= 10
+        if not improved:
+            break
+        step = np.max(np.abs(dx) / np.maximum(np.abs(x), 1e-12))
+        if rel < rtol and step < 1e-7:
+            break
+    return x, it
+
+
+def run_lmfit(prob: Problem, x0: np.ndarray, max_nfev: int | None = None):
+    """Minimise the projected residual with lmfit (method "least_squares")."""
+    import lmfit
+
+    params = lmfit.Parameters()
+    for k in range(len(x0) // 2):
+        params.add(f"m{k + 1}_sigma", value=float(x0[2 * k]))
+        params.add(f"m{k + 1}_u", value=float(x0[2 * k + 1]))
+    names = list(params)
+
+    def fcn(pars: lmfit.Parameters) -> np.ndarray:
+        x = np.array([pars[n].value for n in names])
+        return prob.residual(x)
+
+    def dfun(pars: lmfit.Parameters) -> np.ndarray:
+        x = np.array([pars[n].value for n in names])
+        return prob.kaufman_jacobian(x)
+
+    res = lmfit.minimize(
+        fcn, params, method="least_squares", Dfun=dfun, x_scale="jac", max_nfev=max_nfev,
+        ftol=1e-10, xtol=1e-10, gtol=1e-10,
+    )
+    x = np.array([res.params[n].value for n in names])
+    return res, x
+
+
+def covariance(prob: Problem, x: np.ndarray, rss: float, n_tot: int, n_lin: int) -> np.ndarray:
+    """Covariance of the packed parameters: s^2 (J^T J)^-1 with s^2 = RSS/(N_tot - p)."""
+    j = prob.kaufman_jacobian(x)
+    p = x.size + n_lin
+    s2 = rss / max(n_tot - p, 1)
+    jtj = j.T @ j
+    try:
+        return s2 * np.linalg.inv(jtj)
+    except np.linalg.LinAlgError:
+        return np.full((x.size, x.size), np.nan)
+
+
+def natural_with_cov(
+    prob: Problem, x: np.ndarray, cov: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """(f_n Hz, zeta) per mode and their standard deviations by linear propagation."""
+    sigma, u = prob.unpack(x)
+    m = sigma.size
+    fn = np.empty(m)
+    zeta = np.empty(m)
+    fn_std = np.empty(m)
+    zeta_std = np.empty(m)
+    ws = prob.w_scale
+    for k in range(m):
+        wn, z = natural(sigma[k], u[k])
+        fn[k] = wn / (2 * np.pi)
+        zeta[k] = z
+        if not np.isfinite(wn):
+            fn_std[k] = zeta_std[k] = np.nan
+            continue
+        # d wn / d(sigma, u) = (sigma / wn, 1 / (2 wn)); zeta = sigma / wn
+        dwn = np.array([sigma[k] / wn, 0.5 / wn])
+        dz = np.array([1.0 / wn, 0.0]) - sigma[k] / wn**2 * dwn
+        scale = np.array([ws, ws * ws])  # packed -> physical
+        c = cov[2 * k : 2 * k + 2, 2 * k : 2 * k + 2] * np.outer(scale, scale)
+        fn_std[k] = np.sqrt(max(dwn @ c @ dwn, 0.0)) / (2 * np.pi)
+        zeta_std[k] = np.sqrt(max(dz @ c @ dz, 0.0))
+    return fn, zeta, fn_std, zeta_std
