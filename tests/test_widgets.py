@@ -228,3 +228,14 @@ def test_decimation_keeps_every_peak():
     # same envelope as the report's loop version (an independent implementation in the repo)
     tr, yr = decimate_for_display(t, y, 400)
     assert abs(len(tr) - len(tt)) <= 0.05 * len(tr)  # about as many points (bucket edges differ)
+
+
+def test_desk_builds_a_panel_when_its_tab_opens(desk):
+    from modalnb.widgets import Desk
+
+    d = Desk(desk.analysis)
+    assert list(d._built) == ["hits"]  # only the first tab at start
+    d.tabs.selected_index = 3
+    assert "fit" in d._built and d._boxes[3].children == (d.fit.widget,)
+    assert d.tabs.get_title(4).endswith("Modal table")
+    d.close()
