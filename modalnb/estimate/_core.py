@@ -115,6 +115,7 @@ def fit_core(
     prob = Problem(np.ascontiguousarray(d.T), t, w_scale, n_extra)
     pencil = None
     notes: list[str] = []
+    x0_given = x0
     if x0 is None:
         pencil = find_poles(d, fs, f_max, max_order=max_order)
         modes = initial_modes(pencil.candidates, fs)
@@ -127,8 +128,9 @@ def fit_core(
     thr = significance_threshold(r)
     x = np.asarray(x0, float)
     res = None
-    for _ in range(12):
-        x, _ = levenberg_marquardt(prob, x)
+    for rnd in range(12):
+        # early rounds only need to separate real modes from spurious ones
+        x, _ = levenberg_marquardt(prob, x, max_iter=12 if rnd == 0 and x0_given is None else 60)
         ok = _valid(prob, x, fs)
         energy = _mode_energy(prob, x)
         n_tot = y.size
@@ -154,9 +156,12 @@ def fit_core(
         if drop.any():
             keep = ~drop
         else:
-            # drop every mode far below the threshold, else the weakest one
-            far = signif < thr / 4
-            keep = ~far if far.any() else np.arange(signif.size) != int(np.argmin(signif))
+            # drop every mode below the threshold at once (the strongest survives)
+            keep = ~weak
+            if not keep.any():
+                keep = np.arange(signif.size) == int(np.argmax(signif))
+                if signif.max() < thr:
+                    keep[:] = False
         if not keep.any():
             raise EstimationError(
                 "no mode found above the noise in the searched band. Hint: check the "

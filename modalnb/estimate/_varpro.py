@@ -127,7 +127,7 @@ def gauss_newton(prob: Problem, x: np.ndarray, steps: int = 3) -> np.ndarray:
 
 
 def levenberg_marquardt(
-    prob: Problem, x: np.ndarray, max_iter: int = 60, rtol: float = 1e-9
+    prob: Problem, x: np.ndarray, max_iter: int = 60, rtol: float = 1e-10
 ) -> tuple[np.ndarray, int]:
     """Levenberg-Marquardt on the projected residual with Kaufman's Jacobian.
 
@@ -167,7 +167,7 @@ def levenberg_marquardt(
         if not improved:
             break
         step = np.max(np.abs(dx) / np.maximum(np.abs(x), 1e-12))
-        if rel < rtol and step < 1e-7:
+        if rel < rtol or step < 1e-9:
             break
     return x, it
 
