@@ -73,6 +73,30 @@ def _mode_energy(prob: Problem, x: np.ndarray) -> np.ndarray:
     return e
 
 
+def _rss_increase(prob: Problem, x: np.ndarray) -> np.ndarray:
+    """Increase of the (compressed) RSS when each mode is left out, poles of the others fixed.
+
+    This is the likelihood-ratio statistic of the mode (times s^2); unlike the mode's own
+    fitted energy it stays small for pairs of spurious modes that cancel each other.
+    """
+    phi = prob.basis(x)
+    d = prob.data_t
+    base = float(np.sum(d**2))
+
+    def rss(cols: np.ndarray) -> float:
+        q, _ = np.linalg.qr(cols)
+        return base - float(np.sum((q.T @ d) ** 2))
+
+    r0 = rss(phi)
+    m = x.size // 2
+    out = np.empty(m)
+    for k in range(m):
+        keep = np.ones(phi.shape[1], bool)
+        keep[2 * k : 2 * k + 2] = False
+        out[k] = rss(phi[:, keep]) - r0
+    return np.maximum(out, 0.0)
+
+
 def full_rss(y_t: np.ndarray, prob: Problem, x: np.ndarray) -> float:
     """Residual sum of squares of the full (uncompressed) data (N, P) at `x`."""
     q, _ = np.linalg.qr(prob.basis(x))
@@ -138,6 +162,7 @@ def fit_core(
         rss = full_rss(y_t_full, prob, x)
         s2 = rss / max(n_tot - n_lin - x.size, 1)
         signif = energy / max(s2, 1e-300)
+        lr = _rss_increase(prob, x) / max(s2, 1e-300)
         # duplicates: two modes converged onto one pole
         sigma, u = prob.unpack(x)
         dup = np.zeros(sigma.size, bool)
@@ -150,7 +175,7 @@ def fit_core(
                 if abs(li - lj) < 1e-4 * max(abs(li), abs(lj)):
                     dup[i if signif[i] < signif[j] else j] = True
         drop = ~ok | dup
-        weak = signif < thr
+        weak = lr < thr
         if not drop.any() and not weak.any():
             break
         if drop.any():
@@ -159,8 +184,8 @@ def fit_core(
             # drop every mode below the threshold at once (the strongest survives)
             keep = ~weak
             if not keep.any():
-                keep = np.arange(signif.size) == int(np.argmax(signif))
-                if signif.max() < thr:
+                keep = np.arange(lr.size) == int(np.argmax(lr))
+                if lr.max() < thr:
                     keep[:] = False
         if not keep.any():
             raise EstimationError(

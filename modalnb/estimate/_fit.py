@@ -248,6 +248,14 @@ class ModeFit:
         self._run(self._records, window, self.accept, x0=self._x)
         return self.result_
 
+    def fit_report(self) -> str:
+        """lmfit's text report of the final refinement (``lmfit.fit_report``)."""
+        import lmfit
+
+        if not hasattr(self, "minimizer_result_"):
+            raise EstimationError("This ModeFit instance is not fitted yet. Call 'fit' first.")
+        return lmfit.fit_report(self.minimizer_result_)
+
     # ---------------------------------------------------------------- internals
     def _run(self, records: xr.Dataset, window: Any, accept: Any, x0: np.ndarray | None) -> None:
         fs = get_sample_rate(validate_records(records))

@@ -240,7 +240,7 @@ def find_poles(
             return False
         zeta = -lk.real / abs(lk)
         slow = -lk.real * t_len < 0.5  # decays less than e^-0.5 over the window: drift
-        return zeta >= 0.3 and not slow
+        return zeta >= 0.1 and not slow
 
     _sweep(data[:, :n_w], dt, 0.0, orders_w, k_w, 0, out, accept_wide, real_data=True)
     if min_significance is None:

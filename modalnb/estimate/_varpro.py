@@ -42,7 +42,11 @@ class Problem:
         return basis_matrix(self.t, sigma, u, self.n_extra)
 
     def residual(self, x: np.ndarray) -> np.ndarray:
-        phi = self.basis(x)
+        with np.errstate(over="ignore", invalid="ignore"):
+            phi = self.basis(x)
+        if not np.all(np.isfinite(phi)):
+            # a trial step to a growing exponential: worse than any real fit
+            return np.full(self.data_t.size, 1e100)
         q, _ = np.linalg.qr(phi)
         r = self.data_t - q @ (q.T @ self.data_t)
         return r.ravel()

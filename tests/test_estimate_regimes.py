@@ -1,0 +1,164 @@
+"""Regimes, formulas and hard cases of fit_modes.
+
+Signals are closed-form SDOF free decays (METHODS §1 formulas, in modalnb.synth) or
+solve_ivp simulations where a physics truth is needed.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy.integrate import solve_ivp
+
+from modalnb._errors import EstimationError
+from modalnb.estimate import ModeFit, fit_modes
+from modalnb.records import records_from_arrays
+from modalnb.synth import add_noise, free_decay
+
+FS = 2048.0
+
+
+def _sdof_ivp(fn, zeta, n=2048, x0=0.0, v0=1.0):
+    """Free decay of x'' + 2 zeta wn x' + wn^2 x = 0 from (x0, v0), by solve_ivp.
+
+    The default start (0, v0) is the state just after an ideal hammer impulse.
+    """
+    wn = 2 * np.pi * fn
+    t = np.arange(n) / FS
+    sol = solve_ivp(lambda _t, z: [z[1], -2 * zeta * wn * z[1] - wn * wn * z[0]], (0, t[-1]),
+                    [x0, v0], t_eval=t, rtol=1e-11, atol=1e-14, method="DOP853")
+    return t, sol.y[0]
+
+
+@pytest.mark.parametrize("zeta", [1.0, 1.5, 3.0])
+def test_non_oscillating_regimes(zeta):
+    t, x = _sdof_ivp(10.0, zeta)
+    rng = np.random.default_rng(5)
+    y, _ = add_noise(x, 50.0, rng, t)
+    res = fit_modes(records_from_arrays(y, FS), accept=[True])
+    assert res.sizes["mode"] == 1
+    # truth: the ODE coefficients given to solve_ivp
+    np.testing.assert_allclose(res["frequency_hz"].values[0], 10.0, rtol=0.01)
+    np.testing.assert_allclose(res["damping_ratio"].values[0], zeta, rtol=0.02)
+    # fact of the trade (common practice): zeta = 1 is critical, above is overdamped
+    expect = "critical" if zeta == 1.0 else "overdamped"
+    assert res["regime"].values[0] == expect
+    # no oscillation: damped frequency and log decrement are NaN and the status says why
+    assert np.isnan(res["damped_frequency_hz"].values[0])
+    assert "no oscillation" in res["status"].values[0]
+    for name in ("frequency_hz_std", "damping_ratio_std", "q_factor", "decay_rate_db_per_s"):
+        assert np.isfinite(res[name].values[0])
+
+
+def test_light_damping_formulas():
+    fn, zeta = 60.0, 0.004
+    t = np.arange(8192) / FS
+    y, _ = add_noise(free_decay(t, fn, zeta), 40.0, np.random.default_rng(2), t)
+    res = fit_modes(records_from_arrays(y, FS), accept=[True])
+    z = float(res["damping_ratio"][0])
+    f = float(res["frequency_hz"][0])
+    assert res["regime"].values[0] == "underdamped"
+    # exact log decrement delta = 2 pi zeta / sqrt(1 - zeta^2) (METHODS §1)
+    np.testing.assert_allclose(res["log_decrement"][0], 2 * np.pi * z / np.sqrt(1 - z * z))
+    # Q = 1/(2 zeta), loss factor 2 zeta (METHODS §1)
+    np.testing.assert_allclose(res["q_factor"][0], 1 / (2 * z))
+    np.testing.assert_allclose(res["loss_factor"][0], 2 * z)
+    # dB/s = 20 log10(e) sigma = 8.686 sigma; T60 = 6.908 / sigma (METHODS §1)
+    sigma = z * 2 * np.pi * f
+    np.testing.assert_allclose(res["decay_rate_db_per_s"][0], 8.6859 * sigma, rtol=1e-4)
+    np.testing.assert_allclose(res["decay_time_constant_s"][0], 1 / sigma)
+    # common practice: for zeta << 1 the damped frequency equals fn within ~zeta^2/2
+    fd = float(res["damped_frequency_hz"][0])
+    assert abs(fd - f) / f <= z * z / 2 * 1.01
+    # against the truth given to the closed-form decay
+    assert abs(z - zeta) < 4 * float(res["damping_ratio_std"][0])
+    assert abs(f - fn) < 4 * float(res["frequency_hz_std"][0])
+
+
+def test_exponential_window_is_removed_exactly():
+    fn, zeta, tau = 80.0, 0.01, 0.25
+    t = np.arange(-128, 4096) / FS
+    rng = np.random.default_rng(11)
+    clean = free_decay(t, fn, zeta)
+    y = clean + 1e-4 * rng.standard_normal(t.size)
+    y = np.where(t >= 0, y * np.exp(-np.clip(t, 0, None) / tau), y)
+    rec = records_from_arrays(y, FS, t0=t[0], attrs={"exponential_window_tau_s": tau})
+    res = fit_modes(rec, accept=[True])
+    # exact pole shift lambda_true = lambda_meas + 1/tau (METHODS §4): un-windowed zeta
+    np.testing.assert_allclose(res["damping_ratio"][0], zeta, rtol=2e-3)
+    # the windowed apparent damping would be zeta + 1/(tau wn) (METHODS §4, light damping)
+    assert abs(float(res["damping_ratio"][0]) - (zeta + 1 / (tau * 2 * np.pi * fn))) > 5e-3
+    assert "exp(t/tau)" in res.attrs["settings"]
+
+
+def test_close_modes_and_dead_channel():
+    # gap of 1.5 half-power bandwidths: 1.5 * 2 zeta f
+    f1, zeta = 100.0, 0.005
+    f2 = f1 + 1.5 * 2 * zeta * f1
+    t = np.arange(8192) / FS
+    rng = np.random.default_rng(4)
+    sig = np.stack([free_decay(t, [f1, f2], zeta, [1.0, 0.7], [0.0, 1.0]),
+                    free_decay(t, [f1, f2], zeta, [0.5, -1.0], [0.3, 0.2]),
+                    np.zeros(t.size)])
+    y = sig + 1e-3 * rng.standard_normal(sig.shape) * (np.arange(3) < 2)[:, None]
+    res = fit_modes(records_from_arrays(y[None], FS), accept=[True])
+    np.testing.assert_allclose(res["frequency_hz"].values, [f1, f2], rtol=1e-4)  # synth truth
+    np.testing.assert_allclose(res["damping_ratio"].values, [zeta, zeta], rtol=0.02)
+    assert "dead" in res["channel_note"].values[2]
+    assert np.all(res["shape_amplitude"].values[:, 2] == 0)
+
+
+@pytest.mark.parametrize("zeta", [0.0005, 0.2, 0.7])
+def test_wide_damping_range(zeta):
+    t = np.arange(4096) / FS
+    y, _ = add_noise(free_decay(t, 150.0, zeta), 40.0, np.random.default_rng(8), t)
+    res = fit_modes(records_from_arrays(y, FS), accept=[True])
+    assert res.sizes["mode"] == 1
+    # the decay's own parameters (closed form, METHODS §1)
+    assert abs(float(res["damping_ratio"][0]) - zeta) < 5 * float(res["damping_ratio_std"][0])
+    assert res["status"].values[0].startswith("ok")
+
+
+def test_low_snr_does_not_crash():
+    t = np.arange(4096) / FS
+    y, _ = add_noise(free_decay(t, 120.0, 0.01), 10.0, np.random.default_rng(9), t)
+    res = fit_modes(records_from_arrays(y, FS), accept=[True])
+    k = int(np.argmin(np.abs(res["frequency_hz"].values - 120.0)))
+    assert abs(float(res["frequency_hz"][k]) - 120.0) < 5 * float(res["frequency_hz_std"][k])
+
+
+def test_short_window_status_and_direction_sign():
+    t = np.arange(4096) / FS
+    x = free_decay(t, 50.0, 0.01)
+    y = np.stack([x, x]) + 1e-4 * np.random.default_rng(1).standard_normal((2, t.size))
+    rec = records_from_arrays(y, FS, direction=["+Z", "-Z"])
+    res = fit_modes(rec, window=(0.0, 0.05), accept=[True])  # 2.5 cycles
+    assert "cycles" in res["status"].values[0]
+    # the same signal labelled -Z: its shape phase is flipped by 180 degrees (sign convention)
+    np.testing.assert_allclose(abs(res["shape_phase_deg"].values[0, 1]), 180.0, atol=0.1)
+
+
+def test_bad_input_errors():
+    t = np.arange(2048) / FS
+    rec = records_from_arrays(free_decay(t, 50.0, 0.01), FS)
+    with pytest.raises(EstimationError, match="all 1 hits are rejected"):
+        fit_modes(rec, accept=[False])
+    noise = np.random.default_rng(0).standard_normal(2048)
+    with pytest.raises(EstimationError, match="no mode found"):
+        fit_modes(records_from_arrays(noise, FS), accept=[True])
+    with pytest.raises(EstimationError, match="window"):
+        fit_modes(rec, window=(0.1, 0.1005), accept=[True])
+    with pytest.raises(EstimationError, match="not fitted"):
+        ModeFit().refit(window=(0.0, 0.5))
+
+
+def test_refit_after_window_change_and_lmfit_report():
+    t = np.arange(4096) / FS
+    y, _ = add_noise(free_decay(t, [40.0, 95.0], [0.01, 0.02]), 40.0, np.random.default_rng(3), t)
+    est = ModeFit(accept=[True]).fit(records_from_arrays(y, FS))
+    first = est.result_["frequency_hz"].values.copy()
+    new = est.refit(window=(0.2, 1.5))
+    np.testing.assert_allclose(new["frequency_hz"].values, [40.0, 95.0], rtol=1e-3)  # truth
+    assert new.attrs["window"][0] >= 0.2 and first.size == 2
+    assert "m1_sigma" in est.fit_report()
+    assert est.stabilisation_.sizes["pole"] > 0
