@@ -117,3 +117,16 @@ def test_smoke_run_baselines_recover_the_easy_mode(smoke) -> None:
 def test_too_few_trials_is_an_error() -> None:
     with pytest.raises(ModalnbError, match="trials"):
         run_bench(quick=True, trials=1)
+
+
+def test_smoke_run_modalnb_recovers_the_easy_mode(smoke) -> None:
+    # the engine on the 40 dB single mode: error within a few bound widths
+    # (Cramér–Rao bound from modalnb.crlb, itself checked in test_crlb.py against Kay 1993)
+    res, _ = smoke
+    case = next(c for c in res["accuracy"] if c["case"] == "single" and c["snr_db"] == 40)
+    m = case["methods"]["modalnb"]
+    if m is None:
+        pytest.skip("modalnb.estimate.fit_modes is not importable")
+    assert m["frequency_hz"]["failed_fraction"][0] == 0
+    assert m["frequency_hz"]["ratio"][0] < 5
+    assert m["damping_ratio"]["ratio"][0] < 5
