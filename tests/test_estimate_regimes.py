@@ -162,3 +162,21 @@ def test_refit_after_window_change_and_lmfit_report():
     assert new.attrs["window"][0] >= 0.2 and first.size == 2
     assert "m1_sigma" in est.fit_report()
     assert est.stabilisation_.sizes["pole"] > 0
+
+
+def test_cross_checks_agree_on_a_clean_long_decay():
+    from modalnb.estimate import cross_checks
+
+    t = np.arange(16384) / FS  # 8 s: about 25 time constants, negligible truncation bias
+    y, _ = add_noise(free_decay(t, [50.0, 140.0], [0.01, 0.005]), 50.0,
+                     np.random.default_rng(6), t)
+    rec = records_from_arrays(y, FS)
+    res = fit_modes(rec, accept=[True])
+    xc = cross_checks(rec, res)
+    # the closed-form decay's zeta (METHODS §1); each method within its bias on clean data
+    for name, tol in (("log_decrement", 0.05), ("half_power", 0.1), ("hilbert", 0.1)):
+        np.testing.assert_allclose(xc[f"xcheck_{name}_damping"].values, [0.01, 0.005], rtol=tol)
+    over = fit_modes(records_from_arrays(_sdof_ivp(10.0, 2.0)[1], FS), accept=[True])
+    xo = cross_checks(records_from_arrays(_sdof_ivp(10.0, 2.0)[1], FS), over)
+    assert np.isnan(xo["xcheck_hilbert_damping"].values[0])
+    assert "no oscillation" in xo["xcheck_note"].values[0]

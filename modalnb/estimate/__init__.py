@@ -3,6 +3,7 @@
 * :func:`fit_modes`, :class:`ModeFit`: natural frequencies, damping ratios, shapes and
   uncertainties (band-split matrix pencil + variable projection);
 * :func:`mac`, :func:`mac_matrix`, :func:`mpc`: shape comparison;
+* :func:`cross_checks`: log decrement, half-power and Hilbert damping beside each mode;
 * :func:`modal_conversions`: damping measures, stiffness and damping coefficient.
 """
 
@@ -11,5 +12,6 @@ from __future__ import annotations
 from ._convert import modal_conversions
 from ._fit import ModeFit, fit_modes
 from ._shapes import mac, mac_matrix, mpc
+from ._xcheck import cross_checks
 
-__all__ = ("fit_modes", "modal_conversions", "mac", "mac_matrix", "mpc", "ModeFit")
+__all__ = ("fit_modes", "cross_checks", "modal_conversions", "mac", "mac_matrix", "mpc", "ModeFit")

@@ -81,6 +81,10 @@ class Problem:
         n, p = self.data_t.shape
         jac = np.empty((n * p, x.size), order="F")
         t = self.t
+        with np.errstate(over="ignore", invalid="ignore", under="ignore"):
+            return self._kaufman_fill(jac, phi, q, coef, sigma, u, t, mode_columns)
+
+    def _kaufman_fill(self, jac, phi, q, coef, sigma, u, t, mode_columns):
         for k in range(sigma.size):
             c0, c1 = phi[:, 2 * k], phi[:, 2 * k + 1]
             a, b = coef[2 * k], coef[2 * k + 1]
@@ -94,8 +98,9 @@ class Problem:
                 :, None] * b[None, :]
             du *= self.w_scale**2
             for j, g in ((2 * k, ds), (2 * k + 1, du)):
-                g = g - q @ (q.T @ g)
-                jac[:, j] = -g.ravel()
+                with np.errstate(over="ignore", invalid="ignore"):
+                    g = g - q @ (q.T @ g)
+                jac[:, j] = np.nan_to_num(-g.ravel(), nan=0.0, posinf=0.0, neginf=0.0)
         return jac
 
     def coefficients(self, x: np.ndarray, data_t: np.ndarray | None = None) -> np.ndarray:
