@@ -12,7 +12,7 @@ import xarray as xr
 from .recipe import Recipe
 from .records import records_checksum, validate_records
 
-__all__ = ["run_recipe", "recipe_for"]
+__all__ = ["run_recipe", "recipe_for", "fit_inputs", "finish_result"]
 
 
 def recipe_for(records: xr.Dataset, recipe: Recipe | None = None, **changes: Any) -> Recipe:
@@ -57,15 +57,38 @@ def run_recipe(records: xr.Dataset, recipe: Recipe, *, progress: Any = None) -> 
     say = progress or (lambda _msg: None)
     say("checking hits")
     checks = check_hits(records, overrides=recipe.hit_overrides or None, **recipe.check_thresholds)
-    accept = {int(h): bool(a) for h, a in zip(checks["hit"].values, checks["accepted"].values, strict=True)}
     say("fitting modes")
-    result = fit_modes(
-        records,
-        **recipe.fit_kwargs(),
-        accept=accept,
-        correct_exponential_window=recipe.correct_exponential_window,
-    )
+    fit_records, accept = fit_inputs(records, recipe, checks)
+    result = fit_modes(fit_records, **recipe.fit_kwargs(), accept=accept)
+    return finish_result(result, recipe, checks), checks
+
+
+def fit_inputs(records: xr.Dataset, recipe: Recipe, checks: xr.Dataset) -> tuple[xr.Dataset, dict[int, bool]]:
+    """The records the engine sees and the hit decisions, as `recipe` and `checks` say.
+
+    When the recipe keeps the acquisition's exponential window uncorrected the engine is
+    given the records without ``exponential_window_tau_s`` (so it removes nothing).
+
+    Examples
+    --------
+    >>> from modalnb.demo import load_demo
+    >>> from modalnb.checks import check_hits
+    >>> ds = load_demo()
+    >>> _, accept = fit_inputs(ds, Recipe(), check_hits(ds))
+    >>> sorted(h for h, ok in accept.items() if not ok)
+    [4, 6]
+    """
+    accept = {int(h): bool(a) for h, a in zip(checks["hit"].values, checks["accepted"].values, strict=True)}
+    fit_records = records
+    if not recipe.correct_exponential_window and "exponential_window_tau_s" in records.attrs:
+        fit_records = records.copy()
+        del fit_records.attrs["exponential_window_tau_s"]
+    return fit_records, accept
+
+
+def finish_result(result: xr.Dataset, recipe: Recipe, checks: xr.Dataset) -> xr.Dataset:
+    """Attach the hit-check reasons and warnings and the recipe (JSON) to a fit result."""
     result = result.assign(hit_reason=("hit", [str(r) for r in checks["reason"].values]))
     result = result.assign(hit_warnings=("hit", [str(w) for w in checks["warnings"].values]))
     result.attrs["recipe"] = recipe.to_json()
-    return result, checks
+    return result

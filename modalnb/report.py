@@ -16,6 +16,7 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
+from ._errors import ModalnbError
 from .export import CAUTION, hits_rows, modes_rows
 from .recipe import atomic_write_text
 
@@ -154,9 +155,17 @@ def report_html(
         Output of :func:`modalnb.check_hits` (warnings column).
     model : xarray.DataArray, optional
         Fitted model over (hit, channel, time) in the fit window, drawn over the data.
+        Default: rebuilt from the table's poles (:func:`modalnb.estimate.model_traces`).
     title : str
         Page title (escaped).
     """
+    if model is None:
+        from .estimate import model_traces
+
+        try:
+            model = model_traces(records, result)
+        except (ModalnbError, np.linalg.LinAlgError):
+            model = None  # the report still shows the data, the table and the decisions
     figs = _figures(records, result, model)
     parts = []
     for i, fig in enumerate(figs):

@@ -7,9 +7,10 @@ updates the recipe, refits, autosaves the recipe atomically beside the data and 
 views through plain callbacks (:meth:`Analysis.subscribe`). A refit that fails keeps the
 previous recipe and result and stores a one-line message in :attr:`Analysis.error`.
 
-The result is always ``run_recipe(records, recipe)`` of the current recipe, so a saved
+A full fit is exactly ``run_recipe(records, recipe)`` of the current recipe, so a saved
 recipe replays headlessly (``modalnb fit --recipe``, :func:`modalnb.pipeline.run_recipe`)
-to the same table.
+to the same table. A window change alone uses the estimator's fast refit (a preview,
+:attr:`Analysis.preview`); exports always come from a full fit.
 
 Nothing here imports ipywidgets or plotly; :meth:`Analysis.export` imports the report
 writer (which uses plotly) only when called.
@@ -28,7 +29,10 @@ import numpy as np
 import xarray as xr
 
 from ._errors import ModalnbError
-from .pipeline import recipe_for, run_recipe
+from .estimate import mac
+from .estimate._model import model_poles as _poles
+from .estimate._model import refit_model
+from .pipeline import finish_result, fit_inputs, recipe_for
 from .recipe import Recipe, RecipeError, load_recipe, save_recipe
 from .records import get_sample_rate, records_checksum, validate_records
 
@@ -51,78 +55,6 @@ def default_recipe_path(records_path: str | os.PathLike[str]) -> Path:
     """
     p = Path(records_path)
     return p.with_name(p.stem + ".recipe.json")
-
-
-def mac(a: Any, b: Any) -> float:
-    """Modal assurance criterion of two (complex) shape vectors (Allemang & Brown 1982).
-
-    ``MAC = |a^H b|^2 / ((a^H a)(b^H b))``, 1 for collinear shapes, 0 for orthogonal ones.
-
-    Examples
-    --------
-    >>> round(mac([1, 2, 3], [2, 4, 6]), 12)
-    1.0
-    >>> mac([1, 0], [0, 1])
-    0.0
-    """
-    a = np.asarray(a, dtype=complex).ravel()
-    b = np.asarray(b, dtype=complex).ravel()
-    den = float(np.real(np.vdot(a, a)) * np.real(np.vdot(b, b)))
-    if not den > 0:
-        return math.nan
-    return float(abs(np.vdot(a, b)) ** 2 / den)
-
-
-def _poles(result: xr.Dataset) -> np.ndarray:
-    """Continuous-time poles (rad/s) of the result's modes (lambda = -zeta w + j w sqrt(1-zeta^2))."""
-    fn = np.asarray(result["frequency_hz"].values, float)
-    z = np.asarray(result["damping_ratio"].values, float)
-    w = 2 * np.pi * fn
-    return -z * w + 1j * w * np.sqrt(np.clip(1 - z**2, 0.0, None))
-
-
-def refit_model(
-    t: np.ndarray, y: np.ndarray, poles: np.ndarray
-) -> tuple[np.ndarray, np.ndarray]:
-    """Least-squares model of signals `y` (P, N) at times `t` (N,) with the given poles.
-
-    With the poles fixed, a sum of decaying sinusoids (plus a constant offset) is linear
-    in its amplitudes, so they follow from one linear least-squares solve (the inner step
-    of variable projection, Golub & Pereyra 1973). Under- and overdamped poles alike: an
-    underdamped pole gives the columns ``e^(-sigma t) cos(wd t)`` and ``... sin``; a pole
-    with no imaginary part gives ``e^(-sigma t)`` and ``t e^(-sigma t)``.
-
-    Returns
-    -------
-    model : ndarray (P, N)
-    coefficients : ndarray (P, n_columns)
-
-    Examples
-    --------
-    >>> t = np.arange(400) / 400.0
-    >>> y = np.exp(-2 * t) * np.cos(2 * np.pi * 20 * t)
-    >>> lam = np.array([-2 + 2j * np.pi * 20])
-    >>> m, _ = refit_model(t, y[None], lam)
-    >>> bool(np.allclose(m[0], y))
-    True
-    """
-    t = np.asarray(t, float)
-    tt = t - t[0]
-    cols = [np.ones_like(tt)]
-    for lam in np.asarray(poles, complex):
-        if not np.isfinite(lam):
-            continue
-        env = np.exp(lam.real * tt)
-        if abs(lam.imag) > 0:
-            cols += [env * np.cos(lam.imag * tt), env * np.sin(lam.imag * tt)]
-        else:
-            cols += [env, tt * env]
-    basis = np.stack(cols, axis=1)
-    scale = np.linalg.norm(basis, axis=0)
-    scale[scale == 0] = 1.0
-    coef, *_ = np.linalg.lstsq(basis / scale, np.asarray(y, float).T, rcond=None)
-    coef = coef / scale[:, None]
-    return (basis @ coef).T, coef.T
 
 
 class Analysis:
@@ -183,6 +115,11 @@ class Analysis:
         self._listeners: list[Listener] = []
         self._spectrum: tuple[tuple[int, ...], np.ndarray, np.ndarray] | None = None
         self._model_cache: tuple[tuple[int, int], Any] | None = None
+        self._estimator: Any = None
+        self._estimator_key: Any = None
+        self._checks_key: Any = None
+        #: True when :attr:`result` came from the fast refit (see :meth:`_fit`).
+        self.preview = False
         checksum = records_checksum(records)
         if recipe is not None and recipe.records_checksum and recipe.records_checksum != checksum:
             self.warning = (
@@ -195,7 +132,7 @@ class Analysis:
         self.recipe = recipe_for(records, recipe, **changes)
         self._initial = self.recipe
         if fit:
-            self.refit()
+            self._apply(self.recipe, full=True)
 
     # --- construction --------------------------------------------------------------
     @classmethod
@@ -297,11 +234,11 @@ class Analysis:
 
     def reset(self) -> bool:
         """Back to the recipe this analysis started from."""
-        return self._apply(replace(self._initial))
+        return self._apply(replace(self._initial), full=True)
 
     def refit(self) -> bool:
-        """Fit again with the current recipe (True when it worked)."""
-        return self._apply(self.recipe)
+        """Full fit with the current recipe, no shortcut (True when it worked)."""
+        return self._apply(self.recipe, full=True)
 
     def _change(self, **changes: Any) -> bool:
         try:
@@ -312,11 +249,11 @@ class Analysis:
             return False
         return self._apply(recipe)
 
-    def _apply(self, recipe: Recipe) -> bool:
+    def _apply(self, recipe: Recipe, *, full: bool = False) -> bool:
         self.busy = "fitting modes"
         self._notify("busy")
         try:
-            result, checks = run_recipe(self.records, recipe)
+            result, checks, preview = self._fit(recipe, full=full)
         except (ModalnbError, np.linalg.LinAlgError) as exc:
             self.busy = None
             self.error = " ".join(str(exc).split()) or type(exc).__name__
@@ -324,10 +261,44 @@ class Analysis:
             return False
         self.busy = None
         self.recipe, self.result, self.checks, self.error = recipe, result, checks, None
+        self.preview = preview
         if self.recipe_path is not None:
             save_recipe(recipe, self.recipe_path)
         self._notify("result")
         return True
+
+    def _fit(self, recipe: Recipe, *, full: bool) -> tuple[xr.Dataset, xr.Dataset, bool]:
+        """The steps of :func:`modalnb.pipeline.run_recipe`, keeping the estimator object.
+
+        A change of the window alone (same band, model order and hit decisions) uses the
+        estimator's fast refit from the poles already found (``ModeFit.refit``): a
+        *preview*, which :meth:`export` and :meth:`refit` replace by a full fit, so files
+        always equal a replay of the recipe.
+        """
+        from .checks import check_hits
+        from .estimate import ModeFit
+
+        hits_key = (tuple(sorted(recipe.hit_overrides.items())), repr(sorted(recipe.check_thresholds.items())))
+        if self.checks is not None and self._checks_key == hits_key:
+            checks = self.checks
+        else:
+            checks = check_hits(self.records, overrides=recipe.hit_overrides or None,
+                                **recipe.check_thresholds)
+        fit_records, accept = fit_inputs(self.records, recipe, checks)
+        key = (recipe.band, recipe.n_modes, tuple(sorted(accept.items())),
+               recipe.correct_exponential_window)
+        preview = (not full and recipe.window is not None and self._estimator is not None
+                   and self._estimator_key == key)
+        if preview:
+            result = self._estimator.refit(window=recipe.window)
+        else:
+            est = ModeFit(**recipe.fit_kwargs(), accept=accept)
+            est.fit(fit_records)
+            result = est.result_
+            self._estimator, self._estimator_key = est, key
+        self._checks_key = hits_key
+        result = finish_result(result, recipe, checks)
+        return result, checks, preview
 
     # --- files ---------------------------------------------------------------------
     def save_recipe(self, path: str | os.PathLike[str] | None = None) -> Path:
@@ -354,6 +325,8 @@ class Analysis:
         """
         if self.result is None:
             raise ModalnbError("nothing to export yet: the fit has not succeeded. Hint: see `error`.")
+        if self.preview and not self._apply(self.recipe, full=True):
+            raise ModalnbError(f"the full fit before export failed: {self.error}")
         from .export import write_modal_table
         from .report import write_report
 
@@ -457,11 +430,11 @@ class Analysis:
 
         None when the estimation engine gives no such data with its result.
         """
-        r = self.result
-        if r is None or "stab_order" not in r:
+        st = getattr(self._estimator, "stabilisation_", None)
+        if st is None or "order" not in st or st.sizes.get("pole", 0) == 0:
             return None
-        return (np.asarray(r["stab_order"].values, float), np.asarray(r["stab_frequency_hz"].values, float),
-                np.asarray(r["stab_stable"].values, bool))
+        return (np.asarray(st["order"].values, float), np.asarray(st["frequency_hz"].values, float),
+                np.asarray(st["stable"].values, bool))
 
     def shapes(self) -> np.ndarray:
         """Complex shapes (mode, channel) from amplitude and phase of the result."""

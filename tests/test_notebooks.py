@@ -3,8 +3,6 @@
 The quickstart then the reproduce-from-recipe notebook run in one working folder, as a user
 and then a colleague would: the colleague's table (from the autosaved recipe) must be
 identical to the one the quickstart exported. Committed notebooks carry no outputs.
-While ``modalnb.estimate.fit_modes`` is not importable, a first cell (added to the copy
-that is run, never to the file) puts the stand-in of tests/_standin_engine.py in its place.
 """
 
 from __future__ import annotations
@@ -14,19 +12,11 @@ from pathlib import Path
 
 import nbformat
 import pytest
-from _standin_engine import engine
 
 nbclient = pytest.importorskip("nbclient")
 
 NOTEBOOKS = Path(__file__).resolve().parents[1] / "notebooks"
 ORDER = ["quickstart.ipynb", "reproduce_from_recipe.ipynb"]
-_, REAL_ENGINE = engine()
-STANDIN = (
-    "import sys; sys.path.insert(0, {tests!r})\n"
-    "import modalnb.estimate as _e\n"
-    "from _standin_engine import standin_fit_modes as _f\n"
-    "_e.fit_modes = _f"
-)
 
 
 def _all() -> list[Path]:
@@ -46,8 +36,6 @@ def test_every_notebook_is_known_and_cleared():
 
 def _run(path: Path, cwd: Path) -> nbformat.NotebookNode:
     nb = nbformat.read(path, as_version=4)
-    if not REAL_ENGINE:
-        nb.cells.insert(0, nbformat.v4.new_code_cell(STANDIN.format(tests=str(Path(__file__).parent))))
     client = nbclient.NotebookClient(nb, timeout=300, kernel_name="python3",
                                      resources={"metadata": {"path": str(cwd)}})
     client.execute()

@@ -4,8 +4,7 @@ call, then assert on the analysis state, the recipe on disk and the tables shown
 Sources of the expected values: the recipe file read back by modalnb.recipe.load_recipe;
 the demo truth (demo_truth.json: hit 4 double hit, hit 6 clipped); the MAC definition
 (Allemang & Brown 1982: 1 on the diagonal); the stdlib csv reader for exported files.
-While ``modalnb.estimate.fit_modes`` is not importable the crude stand-in of
-tests/_standin_engine.py drives the state (see test_session.py).
+The real engine (``modalnb.estimate.ModeFit``) drives the state.
 """
 
 from __future__ import annotations
@@ -16,9 +15,7 @@ from types import SimpleNamespace
 
 import numpy as np
 import pytest
-from _standin_engine import engine
 
-import modalnb.estimate as estimate_pkg
 from modalnb.demo import load_demo, load_demo_truth
 from modalnb.recipe import load_recipe
 from modalnb.session import Analysis
@@ -29,18 +26,13 @@ pytest.importorskip("plotly")
 from modalnb.widgets import HitPanel, WindowPanel, analysis_desk  # noqa: E402
 from modalnb.widgets._base import MAX_POINTS  # noqa: E402
 
-FIT, REAL_ENGINE = engine()
-
 
 @pytest.fixture(scope="module")
 def desk(tmp_path_factory):
-    with pytest.MonkeyPatch.context() as mp:
-        if not REAL_ENGINE:
-            mp.setattr(estimate_pkg, "fit_modes", FIT, raising=False)
-        path = tmp_path_factory.mktemp("desk") / "demo.recipe.json"
-        d = analysis_desk(load_demo(), recipe_path=path)
-        yield d
-        d.close()
+    path = tmp_path_factory.mktemp("desk") / "demo.recipe.json"
+    d = analysis_desk(load_demo(), recipe_path=path)
+    yield d
+    d.close()
 
 
 def _cells(html: str, cls: str) -> list[str]:

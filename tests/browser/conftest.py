@@ -58,13 +58,6 @@ def _free_port() -> int:
         return s.getsockname()[1]
 
 
-def _engine_is_real() -> bool:
-    sys.path.insert(0, str(TESTS))
-    from _standin_engine import engine
-
-    return engine()[1]
-
-
 @pytest.hookimpl(hookwrapper=True)
 def pytest_runtest_makereport(item, call):
     outcome = yield
@@ -84,16 +77,6 @@ def lab():
     app.mkdir()
     (app / "overrides.json").write_text(json.dumps(SETTINGS))
     env = dict(os.environ)
-    if not _engine_is_real():
-        # until modalnb.estimate.fit_modes exists: every kernel (also after a restart)
-        # starts with the test stand-in in its place (tests/_standin_engine.py)
-        startup = tmp / "ipython" / "profile_default" / "startup"
-        startup.mkdir(parents=True)
-        (startup / "00-modalnb-standin.py").write_text(
-            f"import sys; sys.path.insert(0, {str(TESTS)!r})\n"
-            "import modalnb.estimate as _e\nfrom _standin_engine import standin_fit_modes as _f\n"
-            "_e.fit_modes = _f\ndel _e, _f\n")
-        env["IPYTHONDIR"] = str(tmp / "ipython")
     port, token = _free_port(), os.urandom(12).hex()
     log = open(tmp / "lab.log", "w")  # noqa: SIM115 - closed at teardown
     cmd = [sys.executable, "-m", "jupyterlab", "--no-browser", "--allow-root", "--ip=127.0.0.1",
