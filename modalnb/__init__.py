@@ -2,7 +2,14 @@
 
 Headless core (never imports ipywidgets or plotly):
 
-* records: :func:`validate_records`, :func:`records_from_arrays`
+* records: :func:`open_records`, :func:`save_records`, :func:`records_from_arrays`,
+  :func:`validate_records`
+* hit checks: :func:`check_hits`
+* estimation: :func:`fit_modes`, :class:`ModeFit`, :func:`mac`, :func:`mpc`,
+  :func:`cross_checks`, :func:`modal_conversions`
+* the deliverable: :class:`Recipe`, :func:`run_recipe`, :func:`write_modal_table`
+
+Widgets live in :mod:`modalnb.widgets` (imported only when asked for).
 * errors: :class:`ModalnbError`, :class:`RecordError`, :class:`EstimationError`
 """
 
@@ -13,7 +20,10 @@ from importlib.metadata import PackageNotFoundError, version
 from . import accessor as _accessor  # noqa: F401  (registers ds.modalnb)
 from ._errors import EstimationError, ModalnbError, RecordError, RecordFileNotFoundError
 from .checks import check_hits, format_hit_report
+from .estimate import ModeFit, cross_checks, fit_modes, mac, mac_matrix, modal_conversions, mpc
+from .export import write_modal_table
 from .io import open_records, save_records, segment_recording
+from .pipeline import run_recipe
 from .recipe import Recipe, load_recipe, save_recipe
 from .records import (
     get_sample_rate,
@@ -43,6 +53,17 @@ __all__ = (
     # hit checks
     "check_hits",
     "format_hit_report",
+    # estimation
+    "fit_modes",
+    "ModeFit",
+    "mac",
+    "mac_matrix",
+    "mpc",
+    "cross_checks",
+    "modal_conversions",
+    # the deliverable
+    "run_recipe",
+    "write_modal_table",
     # recipe
     "Recipe",
     "load_recipe",

@@ -511,6 +511,7 @@ def fit_modes(
     accept: Mapping[int, bool] | Sequence[bool] | None = None,
     max_order: int | None = None,
     scatter: bool = True,
+    recipe: Any = None,
 ) -> xr.Dataset:
     """Natural frequencies, damping ratios and shapes of a record set, with uncertainties.
 
@@ -536,6 +537,11 @@ def fit_modes(
         Highest pencil order per sub-band (default 20).
     scatter : bool
         Compute the hit-to-hit scatter (per-hit pole refits) when >= 3 hits are accepted.
+    recipe : modalnb.Recipe or path, optional
+        Replay an analysis recipe (a :class:`modalnb.Recipe` or its JSON file): hit checks
+        with the recipe's thresholds and overrides, then this fit with its band, window and
+        model order (:func:`modalnb.pipeline.run_recipe`; the same table as ``modalnb fit
+        --recipe``). Then `band`, `window`, `n_modes` and `accept` must not be given.
 
     Returns
     -------
@@ -580,6 +586,19 @@ def fit_modes(
     >>> np.round(res["frequency_hz"].values, 2)
     array([40., 90.])
     """
+    if recipe is not None:
+        given = [name for name, v in (("band", band), ("window", window), ("n_modes", n_modes),
+                                      ("accept", accept)) if v is not None]
+        if given:
+            raise EstimationError(
+                f"fit_modes: pass either recipe= or {', '.join(given)}, not both (the recipe "
+                "holds every choice). Hint: edit the recipe instead."
+            )
+        from ..pipeline import run_recipe
+        from ..recipe import Recipe, load_recipe
+
+        rec = recipe if isinstance(recipe, Recipe) else load_recipe(recipe)
+        return run_recipe(records, rec)[0]
     est = ModeFit(band=band, window=window, n_modes=n_modes, accept=accept,
                   max_order=max_order, scatter=scatter)
     return est.fit(records).result_
