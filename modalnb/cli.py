@@ -213,9 +213,27 @@ def _atomic_text(path: Path, text: str) -> None:
 
 
 def _cmd_bench(args: argparse.Namespace) -> int:
+    from tqdm.std import tqdm
+
     from . import bench
 
-    results = bench.run_bench(quick=args.quick)
+    bar = tqdm(total=0, desc="modalnb bench", unit="case", file=sys.stderr, leave=False,
+               disable=not sys.stderr.isatty())
+    last = [""]
+
+    def progress(done: int, total: int, label: str) -> None:
+        bar.total = total
+        bar.n = done
+        bar.set_postfix_str(label, refresh=True)
+        # not a terminal (a CI log): a line when the step changes and every 5 %
+        if bar.disable and (label != last[0] or done % max(total // 20, 1) == 0 or done == total):
+            print(f"modalnb bench: {done}/{total} {label}", file=sys.stderr, flush=True)
+            last[0] = label
+
+    try:
+        results = bench.run_bench(quick=args.quick, trials=args.trials, progress=progress)
+    finally:
+        bar.close()
     print(bench.format_bench(results))
     if args.json:
         bench.write_bench_json(results, args.json)
@@ -254,6 +272,8 @@ def build_parser() -> argparse.ArgumentParser:
     pb = sub.add_parser("bench", help="accuracy (vs the Cramér-Rao bound) and speed benchmark")
     pb.add_argument("--quick", action="store_true", help="few trials (a smoke run, under a minute)")
     pb.add_argument("--json", help="write the results as JSON to this file")
+    pb.add_argument("--trials", type=int, default=None,
+                    help="noise realisations per accuracy case (default 200, or 12 with --quick)")
     pb.set_defaults(func=_cmd_bench)
     return p
 

@@ -125,10 +125,13 @@ def fit_core(
     max_order: int | None = None,
     n_extra: int = 1,
     max_nfev: int | None = None,
+    polish: bool = True,
 ) -> CoreResult:
     """Shared poles of the weighted signals `y` (P, N) at times `t` from the window start.
 
-    With `x0` (packed poles of an earlier fit) the pencil is skipped (fast refit).
+    With `x0` (packed poles of an earlier fit) the pencil is skipped (fast refit). With
+    ``polish=False`` the final lmfit pass is skipped (a first pass that a reweighted second
+    pass will polish); ``minimizer`` is then None.
     """
     from .._errors import EstimationError
 
@@ -195,11 +198,12 @@ def fit_core(
         idx = np.repeat(np.nonzero(keep)[0] * 2, 2) + np.tile([0, 1], int(keep.sum()))
         x = x[idx]
     # final polish with lmfit (a converged start: few evaluations); users get its result
-    res, x_l = run_lmfit(prob, x, max_nfev=max_nfev or 10 * (x.size + 1))
-    if float(np.sum(prob.residual(x_l) ** 2)) <= float(np.sum(prob.residual(x) ** 2)):
-        x = x_l
-        rss = full_rss(y_t_full, prob, x)
-        s2 = rss / max(n_tot - n_lin - x.size, 1)
+    if polish:
+        res, x_l = run_lmfit(prob, x, max_nfev=max_nfev or 10 * (x.size + 1))
+        if float(np.sum(prob.residual(x_l) ** 2)) <= float(np.sum(prob.residual(x) ** 2)):
+            x = x_l
+            rss = full_rss(y_t_full, prob, x)
+            s2 = rss / max(n_tot - n_lin - x.size, 1)
     cov = covariance(prob, x, rss, n_tot, n_lin)
     fn, zeta, fn_std, zeta_std = natural_with_cov(prob, x, cov)
     sigma, u = prob.unpack(x)

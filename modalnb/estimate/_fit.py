@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 import json
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Any
 
@@ -181,6 +182,26 @@ def _stabilisation(core: CoreResult) -> xr.Dataset:
     )
 
 
+@contextmanager
+def _blas_limit(n: int | None) -> Iterator[None]:
+    """Limit the BLAS thread pools to `n` threads for the duration (None: leave them).
+
+    The fit's matrices are tall and thin (samples x a few dozen columns); several BLAS
+    threads gain little on them and lose much when the machine is busy (another kernel, a
+    dask worker per core), so the default is one (``threadpoolctl``).
+    """
+    if n is None:
+        yield
+        return
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # pragma: no cover - threadpoolctl is a dependency
+        yield
+        return
+    with threadpool_limits(limits=int(n), user_api="blas"):
+        yield
+
+
 class ModeFit:
     """Shared-pole modal estimator for a record set (scikit-learn style).
 
@@ -216,7 +237,9 @@ class ModeFit:
         accept: Mapping[int, bool] | Sequence[bool] | None = None,
         max_order: int | None = None,
         scatter: bool = True,
+        blas_threads: int | None = 1,
     ):
+        self.blas_threads = blas_threads
         self.band = band
         self.window = window
         self.n_modes = n_modes
@@ -258,6 +281,12 @@ class ModeFit:
 
     # ---------------------------------------------------------------- internals
     def _run(self, records: xr.Dataset, window: Any, accept: Any, x0: np.ndarray | None) -> None:
+        with _blas_limit(self.blas_threads):
+            self._run_unlimited(records, window, accept, x0)
+
+    def _run_unlimited(
+        self, records: xr.Dataset, window: Any, accept: Any, x0: np.ndarray | None
+    ) -> None:
         fs = get_sample_rate(validate_records(records))
         band = self.band
         if band is not None:
@@ -275,10 +304,12 @@ class ModeFit:
         t_rel = prep.t_win - prep.t_win[0]
         y = _stack(prep, prep.weight)
         f_search = 0.45 * fs
-        core = fit_core(y, t_rel, fs, f_max=f_search, x0=x0, max_order=self.max_order)
-        weight = prep.weight
         n_live = int(prep.live.sum())
-        if prep.noise_from != "pre-trigger samples" and n_live > 1:
+        reweight = prep.noise_from != "pre-trigger samples" and n_live > 1
+        core = fit_core(y, t_rel, fs, f_max=f_search, x0=x0, max_order=self.max_order,
+                        polish=not reweight)
+        weight = prep.weight
+        if reweight:
             # reweight each channel by its residual RMS and refine (equal noise after weighting)
             coef = core.prob.coefficients(core.x, np.ascontiguousarray(y.T))
             res = y.T - core.prob.basis(core.x) @ coef
@@ -445,33 +476,36 @@ class ModeFit:
             )
             for key, v in vals.items():
                 cols[key][i] = v
-        ds = xr.Dataset(coords={"mode": np.arange(1, m + 1), "channel": prep.channels,
-                                "hit": prep.hits})
+        # variables collected first and the Dataset built once (one merge, not one per variable)
+        coords: dict[str, Any] = {"mode": np.arange(1, m + 1), "channel": prep.channels,
+                                  "hit": prep.hits}
         for extra in ("node", "direction", "x", "y", "z"):
             if extra in records.coords:
-                ds = ds.assign_coords({extra: ("channel", records[extra].values)})
+                coords[extra] = ("channel", records[extra].values)
+        dv: dict[str, Any] = {}
         units = {"frequency_hz": "Hz", "frequency_hz_std": "Hz", "frequency_hz_scatter": "Hz",
                  "damped_frequency_hz": "Hz", "decay_time_constant_s": "s",
                  "decay_rate_db_per_s": "dB/s"}
         for key, v in cols.items():
-            ds[key] = ("mode", v, {"units": units.get(key, "1")})
-        ds["mode_energy"].attrs["description"] = "fitted energy over the noise variance"
-        ds["regime"] = ("mode", np.array(regime, dtype=object))
-        ds["status"] = ("mode", np.array(status, dtype=object))
+            dv[key] = ("mode", v, {"units": units.get(key, "1")})
+        dv["mode_energy"][2]["description"] = "fitted energy over the noise variance"
+        dv["regime"] = ("mode", np.array(regime, dtype=object))
+        dv["status"] = ("mode", np.array(status, dtype=object))
         resp_units = str(records["response"].attrs.get("units", ""))
         r_units = f"{resp_units}/({records['force'].attrs.get('units', 'N')} s)" if use_force else resp_units
-        ds["shape_amplitude"] = (("mode", "channel"), shape_amp)
-        ds["shape_phase_deg"] = (("mode", "channel"), shape_ph, {"units": "deg"})
-        ds["residue_real"] = (("mode", "channel"), ch_res.real, {"units": r_units})
-        ds["residue_imag"] = (("mode", "channel"), ch_res.imag, {"units": r_units})
-        ds["hit_residue_real"] = (("mode", "hit", "channel"), hit_res.real, {"units": r_units})
-        ds["hit_residue_imag"] = (("mode", "hit", "channel"), hit_res.imag, {"units": r_units})
-        ds["fit_r2"] = ("channel", fit_r2)
-        ds["channel_note"] = ("channel", np.array(
+        dv["shape_amplitude"] = (("mode", "channel"), shape_amp)
+        dv["shape_phase_deg"] = (("mode", "channel"), shape_ph, {"units": "deg"})
+        dv["residue_real"] = (("mode", "channel"), ch_res.real, {"units": r_units})
+        dv["residue_imag"] = (("mode", "channel"), ch_res.imag, {"units": r_units})
+        dv["hit_residue_real"] = (("mode", "hit", "channel"), hit_res.real, {"units": r_units})
+        dv["hit_residue_imag"] = (("mode", "hit", "channel"), hit_res.imag, {"units": r_units})
+        dv["fit_r2"] = ("channel", fit_r2)
+        dv["channel_note"] = ("channel", np.array(
             ["ok" if lv else "dead channel (constant in the window): left out of the pole fit"
              for lv in prep.live], dtype=object))
-        ds["hit_accepted"] = ("hit", prep.accepted)
-        ds["hit_reason"] = ("hit", np.array(prep.reasons, dtype=object))
+        dv["hit_accepted"] = ("hit", prep.accepted)
+        dv["hit_reason"] = ("hit", np.array(prep.reasons, dtype=object))
+        ds = xr.Dataset(dv, coords=coords)
         settings = {
             "band": [float(band[0]), float(band[1])],
             "window": [float(prep.t_win[0]), float(prep.t_win[-1])],
@@ -512,6 +546,7 @@ def fit_modes(
     max_order: int | None = None,
     scatter: bool = True,
     recipe: Any = None,
+    blas_threads: int | None = 1,
 ) -> xr.Dataset:
     """Natural frequencies, damping ratios and shapes of a record set, with uncertainties.
 
@@ -537,6 +572,9 @@ def fit_modes(
         Highest pencil order per sub-band (default 20).
     scatter : bool
         Compute the hit-to-hit scatter (per-hit pole refits) when >= 3 hits are accepted.
+    blas_threads : int or None
+        BLAS threads during the fit (default 1: fastest on a busy machine and inside
+        dask workers; None leaves the thread pools as they are).
     recipe : modalnb.Recipe or path, optional
         Replay an analysis recipe (a :class:`modalnb.Recipe` or its JSON file): hit checks
         with the recipe's thresholds and overrides, then this fit with its band, window and
@@ -600,5 +638,5 @@ def fit_modes(
         rec = recipe if isinstance(recipe, Recipe) else load_recipe(recipe)
         return run_recipe(records, rec)[0]
     est = ModeFit(band=band, window=window, n_modes=n_modes, accept=accept,
-                  max_order=max_order, scatter=scatter)
+                  max_order=max_order, scatter=scatter, blas_threads=blas_threads)
     return est.fit(records).result_

@@ -103,6 +103,56 @@ class Problem:
                 jac[:, j] = np.nan_to_num(-g.ravel(), nan=0.0, posinf=0.0, neginf=0.0)
         return jac
 
+    def kaufman_normal(self, x: np.ndarray, r: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+        """``(J^T J, J^T r)`` of Kaufman's Jacobian without forming J (same values).
+
+        Each Jacobian column is ``J_j = -(I - Q Q^T) D_j C_j`` with ``D_j`` (N, 2) the
+        derivative of the mode's two basis columns and ``C_j`` (2, P) their coefficients,
+        so ``J_i . J_j = sum((E_i^T E_j) * (C_i C_j^T))`` with ``E = (I - Q Q^T) D``, and
+        ``J_j . r = -sum((D_j^T R) * C_j)`` since the residual ``R`` is already projected.
+        The cost no longer grows with the number of signals P beyond one ``D^T R``.
+        """
+        from ._basis import mode_columns_du
+
+        x = np.asarray(x, float)
+        sigma, u = self.unpack(x)
+        m = sigma.size
+        t = self.t
+        with np.errstate(over="ignore", invalid="ignore", under="ignore"):
+            phi = basis_matrix(t, sigma, u, self.n_extra)
+            q, rr = np.linalg.qr(phi)
+            qtd = q.T @ self.data_t
+            if np.all(np.abs(np.diag(rr)) > 0):
+                coef = np.linalg.solve(rr, qtd)
+            else:
+                coef = np.linalg.lstsq(phi, self.data_t, rcond=None)[0]
+            dmat = np.empty((t.size, 4 * m))
+            for k in range(m):
+                c0, c1 = phi[:, 2 * k], phi[:, 2 * k + 1]
+                dmat[:, 4 * k] = -(t * c0) * self.w_scale
+                dmat[:, 4 * k + 1] = -(t * c1) * self.w_scale
+                d0, d1 = mode_columns_du(t, sigma[k], u[k], c0, c1)
+                dmat[:, 4 * k + 2] = d0 * self.w_scale**2
+                dmat[:, 4 * k + 3] = d1 * self.w_scale**2
+            dmat = np.nan_to_num(dmat, nan=0.0, posinf=0.0, neginf=0.0)
+            e = dmat - q @ (q.T @ dmat)
+            resid = (self.data_t - q @ qtd) if r is None else r.reshape(self.data_t.shape)
+        n = 2 * m
+        kk = np.arange(n) // 2  # mode of each parameter
+        cm = coef[: 2 * m].reshape(m, 2, -1)  # (m, 2, P)
+        cc = np.einsum("kap,lbp->kalb", cm, cm)  # C_k C_l^T
+        ccx = cc[kk][:, :, kk]  # (n, 2, n, 2)
+        with np.errstate(over="ignore", invalid="ignore"):
+            # a trial point far out (a nearly growing mode) may overflow: such a point
+            # gets a huge but finite normal matrix, so the step is simply refused
+            ete = (e.T @ e).reshape(n, 2, n, 2)
+            jtj = np.einsum("iajb,iajb->ij", ete, ccx)
+            dtr = (dmat.T @ resid).reshape(n, 2, -1)
+            g = -np.einsum("iap,iap->i", dtr, cm[kk])
+        big = np.finfo(float).max / 1e6
+        return (np.nan_to_num(jtj, nan=0.0, posinf=big, neginf=-big),
+                np.nan_to_num(g, nan=0.0, posinf=big, neginf=-big))
+
     def coefficients(self, x: np.ndarray, data_t: np.ndarray | None = None) -> np.ndarray:
         """Linear coefficients (n_cols, P) by least squares at parameters `x`."""
         phi = self.basis(x)
@@ -150,9 +200,7 @@ def levenberg_marquardt(
     it = 0
     for _ in range(max_iter):
         it += 1
-        j = prob.kaufman_jacobian(x)
-        jtj = j.T @ j
-        g = j.T @ r
+        jtj, g = prob.kaufman_normal(x, r)
         d = np.diag(jtj).copy()
         d[d <= 0] = 1.0
         improved = False
@@ -209,10 +257,9 @@ def run_lmfit(prob: Problem, x0: np.ndarray, max_nfev: int | None = None):
 
 def covariance(prob: Problem, x: np.ndarray, rss: float, n_tot: int, n_lin: int) -> np.ndarray:
     """Covariance of the packed parameters: s^2 (J^T J)^-1 with s^2 = RSS/(N_tot - p)."""
-    j = prob.kaufman_jacobian(x)
+    jtj, _ = prob.kaufman_normal(x)
     p = x.size + n_lin
     s2 = rss / max(n_tot - p, 1)
-    jtj = j.T @ j
     try:
         return s2 * np.linalg.inv(jtj)
     except np.linalg.LinAlgError:
