@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["pulse_bounds"]
+__all__ = ["pulse_bounds", "contact_end"]
 
 
 def pulse_bounds(force: np.ndarray, time: np.ndarray, *, end_fraction: float = 0.02) -> tuple[int, int, int]:
@@ -48,3 +48,42 @@ def pulse_bounds(force: np.ndarray, time: np.ndarray, *, end_fraction: float = 0
     below_after = np.nonzero(f[peak:] <= level)[0]
     end = peak + int(below_after[0]) if below_after.size else f.size
     return start, peak, end
+
+
+def contact_end(
+    force: np.ndarray, time: np.ndarray, *, fraction: float = 0.05, end_fraction: float = 0.02,
+    noise_factor: float = 6.0,
+) -> int:
+    """Index (exclusive) where the last hammer contact of a hit has ended.
+
+    For a clean hit this is the end of the main pulse (:func:`pulse_bounds`); after a
+    double hit it is the end of the last later excursion above ``fraction`` of the peak
+    (and above ``noise_factor`` times the force noise, from the median absolute second
+    difference), so a
+    fit window that starts there holds free decay only (common practice: fit after the
+    last contact).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> t = np.arange(100) / 1000.0
+    >>> f = np.zeros(100)
+    >>> f[10:15] = [0.2, 0.7, 1.0, 0.6, 0.1]
+    >>> f[40:43] = [0.1, 0.3, 0.1]          # a second tap at 30 % of the peak
+    >>> contact_end(f, t)
+    43
+    """
+    f = np.abs(np.asarray(force, dtype=float))
+    _, peak, end = pulse_bounds(force, time, end_fraction=end_fraction)
+    if f.size < 3 or f[peak] == 0:
+        return end
+    # robust noise level: median absolute second difference (white noise: var = 6 sigma^2)
+    noise = 1.4826 * float(np.median(np.abs(np.diff(np.asarray(force, float), 2)))) / np.sqrt(6.0)
+    level = max(fraction * f[peak], noise_factor * noise)
+    above = np.nonzero(f[end:] > level)[0]
+    if above.size == 0:
+        return end
+    last = end + int(above[-1])
+    low = max(end_fraction * f[peak], noise_factor * noise / 2)
+    below = np.nonzero(f[last:] <= low)[0]
+    return last + int(below[0]) if below.size else f.size

@@ -178,7 +178,8 @@ def write_modal_table(
         Output folder; existing files of the same names are replaced only once every new
         file has been written completely.
     recipe : Recipe, optional
-        Written as ``recipe.json``.
+        Written as ``recipe.json``; default the recipe the table carries
+        (``result.attrs["recipe"]``, set by :func:`modalnb.fit_modes`), if any.
     checks : xarray.Dataset, optional
         Output of :func:`modalnb.check_hits`, for the ``warnings`` column.
 
@@ -208,6 +209,8 @@ def write_modal_table(
         )
         + "\n",
     }
+    if recipe is None and isinstance(result.attrs.get("recipe"), str):
+        recipe = Recipe.from_json(result.attrs["recipe"])
     if recipe is not None:
         texts["recipe.json"] = recipe.to_json()
     staged: list[tuple[str, Path]] = []

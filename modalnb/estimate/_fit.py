@@ -12,7 +12,7 @@ import numpy as np
 import xarray as xr
 
 from .._errors import EstimationError
-from .._pulse import pulse_bounds
+from .._pulse import contact_end, pulse_bounds
 from ..records import get_sample_rate, has_force, validate_records
 from ._basis import is_near_critical, pole_of, residues_from_coefficients
 from ._core import CoreResult, compress, fit_core
@@ -42,17 +42,18 @@ class _Prepared:
 
 def _accept_decisions(records: xr.Dataset, accept: Any) -> tuple[np.ndarray, list[str]]:
     hits = np.asarray(records["hit"].values)
-    if accept is None:
-        try:
-            from ..checks import check_hits
-        except ImportError:  # pragma: no cover - checks module missing from the install
-            return np.ones(hits.size, bool), ["accepted (hit checks unavailable)"] * hits.size
+    if isinstance(accept, Mapping) and set(hits.tolist()) <= set(accept):
+        # every hit decided by the caller (the pipeline's case): no checks needed
+        acc = np.array([bool(accept[h]) for h in hits.tolist()])
+    elif accept is None or isinstance(accept, Mapping):
+        from ..checks import check_hits
+
         chk = check_hits(records)
         acc = np.asarray(chk["accepted"].values, bool)
         reasons = [str(r) for r in np.asarray(chk["reason"].values).tolist()]
-        return acc, reasons
-    if isinstance(accept, Mapping):
-        acc = np.ones(hits.size, bool)
+        if accept is None:
+            return acc, reasons
+        # a mapping overrides the automatic decisions of the hits it names
         for key, val in accept.items():
             where = np.nonzero(hits == key)[0]
             if where.size == 0:
@@ -60,7 +61,11 @@ def _accept_decisions(records: xr.Dataset, accept: Any) -> tuple[np.ndarray, lis
                     f"`accept` names hit {key!r}, which is not in the records (hits "
                     f"{hits.tolist()})."
                 )
-            acc[where[0]] = bool(val)
+            i = int(where[0])
+            if bool(val) != acc[i] or not reasons[i]:
+                reasons[i] = "accepted (by the caller)" if val else "rejected (by the caller)"
+            acc[i] = bool(val)
+        return acc, reasons
     else:
         acc = np.asarray(list(accept) if not isinstance(accept, np.ndarray) else accept)
         if acc.shape != hits.shape or acc.dtype.kind not in "bi":
@@ -89,7 +94,9 @@ def _prepare(records: xr.Dataset, window: Any, accept: Any) -> _Prepared:
     if has_force(records):
         force = np.asarray(records["force"].values, float)
         bounds = [pulse_bounds(force[h], t) for h in acc_idx]
-        i_default = max(b[2] for b in bounds)
+        # after the last contact of every accepted hit (a double hit that the user
+        # accepted contributes free decay only after its second tap)
+        i_default = max(contact_end(force[h], t) for h in acc_idx)
         pulse_start = min(b[0] for b in bounds)
     else:
         nonneg = np.nonzero(t >= 0)[0]
@@ -561,13 +568,15 @@ def fit_modes(
         Only modes with natural frequency in (fmin, fmax) Hz are reported (all modes up to
         0.45 fs are fitted, so modes outside the band do not bias those inside).
     window : (float, float), optional
-        Absolute times (s) of the samples used. Default: from the end of the force pulse
-        (latest over accepted hits) to the record end; without force from the first
-        sample with t >= 0.
+        Absolute times (s) of the samples used. Default: from the end of the last force
+        contact (latest over accepted hits; after a double hit, its second tap) to the
+        record end; without force from the first sample with t >= 0.
     n_modes : int, optional
         Report only the N strongest in-band modes (by fitted energy).
     accept : mapping or sequence of bool, optional
-        Hit decisions; default exactly those of :func:`modalnb.checks.check_hits`.
+        Hit decisions; default exactly those of :func:`modalnb.checks.check_hits`. A
+        mapping ``{hit: bool}`` overrides the automatic decision of the hits it names; a
+        sequence gives one decision per hit (no checks run).
     max_order : int, optional
         Highest pencil order per sub-band (default 20).
     scatter : bool
@@ -639,4 +648,28 @@ def fit_modes(
         return run_recipe(records, rec)[0]
     est = ModeFit(band=band, window=window, n_modes=n_modes, accept=accept,
                   max_order=max_order, scatter=scatter, blas_threads=blas_threads)
-    return est.fit(records).result_
+    result = est.fit(records).result_
+    result.attrs["recipe"] = _recipe_of_call(records, band, window, n_modes, accept, result)
+    return result
+
+
+def _recipe_of_call(records: xr.Dataset, band: Any, window: Any, n_modes: Any, accept: Any,
+                    result: xr.Dataset) -> str:
+    """The recipe (JSON) that replays this call: its choices, hit decisions as overrides.
+
+    With ``accept=None`` the decisions are those of the default hit checks, which a replay
+    repeats, so no override is stored; an explicit `accept` becomes one override per hit.
+    """
+    from ..pipeline import recipe_for
+    from ..recipe import Recipe
+
+    overrides = {}
+    if accept is not None:
+        overrides = {int(h): bool(a) for h, a in zip(result["hit"].values,
+                                                     result["hit_accepted"].values, strict=True)}
+    rec = recipe_for(records, Recipe(
+        band=None if band is None else tuple(band), window=None if window is None else tuple(window),
+        n_modes=None if n_modes is None else int(n_modes), hit_overrides=overrides,
+        source=str(records.attrs.get("source", "")) or None,
+    ))
+    return rec.to_json()

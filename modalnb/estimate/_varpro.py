@@ -15,7 +15,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._basis import basis_matrix, natural
+from ._basis import basis_matrix, mode_columns_du, natural
 
 
 @dataclass
@@ -69,8 +69,6 @@ class Problem:
         ``J_j = -(I - Q Q^T) (dPhi/dx_j) c`` with ``c`` the least-squares coefficients; the
         second (residual-sized) term of Golub & Pereyra is dropped, as Kaufman proposed.
         """
-        from ._basis import mode_columns
-
         x = np.asarray(x, float)
         sigma, u = self.unpack(x)
         phi = basis_matrix(self.t, sigma, u, self.n_extra)
@@ -82,20 +80,17 @@ class Problem:
         jac = np.empty((n * p, x.size), order="F")
         t = self.t
         with np.errstate(over="ignore", invalid="ignore", under="ignore"):
-            return self._kaufman_fill(jac, phi, q, coef, sigma, u, t, mode_columns)
+            return self._kaufman_fill(jac, phi, q, coef, sigma, u, t)
 
-    def _kaufman_fill(self, jac, phi, q, coef, sigma, u, t, mode_columns):
+    def _kaufman_fill(self, jac, phi, q, coef, sigma, u, t):
         for k in range(sigma.size):
             c0, c1 = phi[:, 2 * k], phi[:, 2 * k + 1]
             a, b = coef[2 * k], coef[2 * k + 1]
             # d/dsigma of exp(-sigma t) f(t) is -t exp(-sigma t) f(t); packed: * w_scale
             ds = -(t * c0)[:, None] * a[None, :] - (t * c1)[:, None] * b[None, :]
             ds *= self.w_scale
-            hu = 1e-6 * max(abs(u[k]), 1e-6 * self.w_scale**2)
-            p0, p1 = mode_columns(t, sigma[k], u[k] + hu)
-            m0, m1 = mode_columns(t, sigma[k], u[k] - hu)
-            du = ((p0 - m0) / (2 * hu))[:, None] * a[None, :] + ((p1 - m1) / (2 * hu))[
-                :, None] * b[None, :]
+            d0, d1 = mode_columns_du(t, sigma[k], u[k], c0, c1)
+            du = d0[:, None] * a[None, :] + d1[:, None] * b[None, :]
             du *= self.w_scale**2
             for j, g in ((2 * k, ds), (2 * k + 1, du)):
                 with np.errstate(over="ignore", invalid="ignore"):
@@ -112,8 +107,6 @@ class Problem:
         ``J_j . r = -sum((D_j^T R) * C_j)`` since the residual ``R`` is already projected.
         The cost no longer grows with the number of signals P beyond one ``D^T R``.
         """
-        from ._basis import mode_columns_du
-
         x = np.asarray(x, float)
         sigma, u = self.unpack(x)
         m = sigma.size
