@@ -60,7 +60,7 @@ def run_recipe(records: xr.Dataset, recipe: Recipe, *, progress: Any = None) -> 
     say("fitting modes")
     fit_records, accept = fit_inputs(records, recipe, checks)
     result = fit_modes(fit_records, **recipe.fit_kwargs(), accept=accept)
-    return finish_result(result, recipe, checks), checks
+    return finish_result(result, recipe, checks, records), checks
 
 
 def fit_inputs(records: xr.Dataset, recipe: Recipe, checks: xr.Dataset) -> tuple[xr.Dataset, dict[int, bool]]:
@@ -86,8 +86,15 @@ def fit_inputs(records: xr.Dataset, recipe: Recipe, checks: xr.Dataset) -> tuple
     return fit_records, accept
 
 
-def finish_result(result: xr.Dataset, recipe: Recipe, checks: xr.Dataset) -> xr.Dataset:
-    """Attach the hit-check reasons and warnings and the recipe (JSON) to a fit result."""
+def finish_result(
+    result: xr.Dataset, recipe: Recipe, checks: xr.Dataset, records: xr.Dataset | None = None
+) -> xr.Dataset:
+    """Attach the hit-check reasons and warnings, the recipe (JSON) and, given the records,
+    the damping cross-checks (:func:`modalnb.estimate.cross_checks`) to a fit result."""
+    if records is not None:
+        from .estimate import with_cross_checks
+
+        result = with_cross_checks(records, result)
     result = result.assign(hit_reason=("hit", [str(r) for r in checks["reason"].values]))
     result = result.assign(hit_warnings=("hit", [str(w) for w in checks["warnings"].values]))
     result.attrs["recipe"] = recipe.to_json()

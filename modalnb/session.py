@@ -297,7 +297,7 @@ class Analysis:
             result = est.result_
             self._estimator, self._estimator_key = est, key
         self._checks_key = hits_key
-        result = finish_result(result, recipe, checks)
+        result = finish_result(result, recipe, checks, self.records)
         return result, checks, preview
 
     # --- files ---------------------------------------------------------------------

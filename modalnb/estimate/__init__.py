@@ -14,6 +14,6 @@ from ._convert import modal_conversions
 from ._fit import ModeFit, fit_modes
 from ._model import model_traces
 from ._shapes import mac, mac_matrix, mpc
-from ._xcheck import cross_checks
+from ._xcheck import cross_checks, with_cross_checks
 
-__all__ = ("fit_modes", "cross_checks", "modal_conversions", "mac", "mac_matrix", "mpc", "ModeFit", "model_traces")
+__all__ = ("fit_modes", "cross_checks", "modal_conversions", "mac", "mac_matrix", "mpc", "ModeFit", "model_traces", "with_cross_checks")

@@ -602,7 +602,9 @@ def fit_modes(
         ``shape_phase_deg``, ``residue_real``/``residue_imag`` (per unit force, integrated
         force spectrum at the pole, where force exists). Over (mode, hit, channel):
         ``hit_residue_real``/``_imag`` (NaN for rejected hits). Over channel: ``fit_r2``,
-        ``channel_note``. Over hit: ``hit_accepted``, ``hit_reason``.
+        ``channel_note``. Over hit: ``hit_accepted``, ``hit_reason``. The damping
+        cross-checks of :func:`modalnb.estimate.cross_checks` (``xcheck_*``, each with its
+        known bias in the attrs).
 
     Notes
     -----
@@ -648,7 +650,9 @@ def fit_modes(
         return run_recipe(records, rec)[0]
     est = ModeFit(band=band, window=window, n_modes=n_modes, accept=accept,
                   max_order=max_order, scatter=scatter, blas_threads=blas_threads)
-    result = est.fit(records).result_
+    from ._xcheck import with_cross_checks
+
+    result = with_cross_checks(records, est.fit(records).result_)
     result.attrs["recipe"] = _recipe_of_call(records, band, window, n_modes, accept, result)
     return result
 
