@@ -48,6 +48,10 @@ def _add_fit_args(p: argparse.ArgumentParser) -> None:
     g.add_argument("--band", nargs=2, type=float, metavar=("FMIN", "FMAX"), help="frequency band in Hz")
     g.add_argument("--window", nargs=2, type=float, metavar=("T0", "T1"), help="fit window, record times in s")
     g.add_argument("--modes", type=int, metavar="N", help="number of modes to keep")
+    g.add_argument("--add-mode", dest="add_mode", type=float, action="append", metavar="HZ",
+                   help="a mode the automatic search missed, near HZ (repeatable)")
+    g.add_argument("--drop-mode", dest="drop_mode", type=float, action="append", metavar="HZ",
+                   help="leave the fitted mode nearest HZ out of the table (repeatable)")
     g.add_argument("--recipe", metavar="FILE", help="replay this recipe (JSON)")
     p.add_argument("--quiet", action="store_true", help="no progress messages")
 
@@ -113,6 +117,10 @@ def _recipe_from_args(args: argparse.Namespace, records: Any):
         changes["window"] = tuple(args.window)
     if getattr(args, "modes", None) is not None:
         changes["n_modes"] = args.modes
+    if getattr(args, "add_mode", None):
+        changes["add_modes"] = sorted({*(base.add_modes if base else []), *args.add_mode})
+    if getattr(args, "drop_mode", None):
+        changes["drop_modes"] = sorted({*(base.drop_modes if base else []), *args.drop_mode})
     if getattr(args, "source", None):
         changes["source"] = args.source
     return recipe_for(records, base, **changes)

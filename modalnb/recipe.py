@@ -54,6 +54,12 @@ class Recipe:
         Fit window, absolute times of the record's ``time`` (s); None = automatic.
     n_modes : int or None
         Number of modes to keep (strongest by energy); None = automatic.
+    add_modes : list of float
+        Frequencies (Hz) where the user says a mode is that the automatic search missed;
+        each seeds a pole that the fit keeps.
+    drop_modes : list of float
+        Frequencies (Hz) of fitted modes the user leaves out of the table (the nearest
+        mode to each; it stays in the model, so its neighbours are not biased).
     hit_overrides : dict
         Hit label -> True (accept) / False (reject), overriding the automatic checks.
     check_thresholds : dict
@@ -80,6 +86,8 @@ class Recipe:
     band: tuple[float, float] | None = None
     window: tuple[float, float] | None = None
     n_modes: int | None = None
+    add_modes: list[float] = field(default_factory=list)
+    drop_modes: list[float] = field(default_factory=list)
     hit_overrides: dict[int, bool] = field(default_factory=dict)
     check_thresholds: dict[str, Any] = field(default_factory=dict)
     correct_exponential_window: bool = True
@@ -94,6 +102,8 @@ class Recipe:
         if self.n_modes is not None:
             if isinstance(self.n_modes, bool) or not isinstance(self.n_modes, int) or self.n_modes < 1:
                 raise RecipeError(f"recipe `n_modes` must be a positive integer or null, was {self.n_modes!r}.")
+        self.add_modes = _freqs("add_modes", self.add_modes)
+        self.drop_modes = _freqs("drop_modes", self.drop_modes)
         overrides: dict[int, bool] = {}
         for k, v in dict(self.hit_overrides).items():
             try:
@@ -171,7 +181,20 @@ class Recipe:
     # --- use -----------------------------------------------------------------------
     def fit_kwargs(self) -> dict[str, Any]:
         """Keyword arguments of :func:`modalnb.fit_modes` that this recipe fixes."""
-        return {"band": self.band, "window": self.window, "n_modes": self.n_modes}
+        return {"band": self.band, "window": self.window, "n_modes": self.n_modes,
+                "add_modes": list(self.add_modes) or None, "drop_modes": list(self.drop_modes) or None}
+
+
+def _freqs(name: str, value: Any) -> list[float]:
+    if value is None:
+        return []
+    try:
+        out = sorted(float(v) for v in value)
+    except (TypeError, ValueError):
+        raise RecipeError(f"recipe `{name}` must be a list of frequencies in Hz, was {value!r}.") from None
+    if any(not (f > 0 and f < float("inf")) for f in out):
+        raise RecipeError(f"recipe `{name}` frequencies must be positive and finite, was {value!r}.")
+    return out
 
 
 def _as_bool(value: Any, name: str) -> bool:

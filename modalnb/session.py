@@ -218,6 +218,38 @@ class Analysis:
         """Number of modes to keep (strongest by energy); None = automatic."""
         return self._change(n_modes=None if n is None else int(n))
 
+    def add_mode(self, frequency_hz: float) -> bool:
+        """Say a mode is at `frequency_hz` (Hz) that the automatic search missed; refit."""
+        f = self._frequency(frequency_hz)
+        if f is None:
+            return False
+        drop = [d for d in self.recipe.drop_modes if abs(d - f) > 0.05 * f]
+        return self._change(add_modes=sorted({*self.recipe.add_modes, f}), drop_modes=drop)
+
+    def drop_mode(self, frequency_hz: float) -> bool:
+        """Leave the fitted mode nearest `frequency_hz` (Hz) out of the table; refit."""
+        f = self._frequency(frequency_hz)
+        if f is None:
+            return False
+        add = [a for a in self.recipe.add_modes if abs(a - f) > 0.05 * f]
+        return self._change(drop_modes=sorted({*self.recipe.drop_modes, f}), add_modes=add)
+
+    def clear_mode_edits(self) -> bool:
+        """Forget every added and dropped mode; refit."""
+        return self._change(add_modes=[], drop_modes=[])
+
+    def _frequency(self, value: Any) -> float | None:
+        try:
+            f = float(value)
+        except (TypeError, ValueError):
+            f = float("nan")
+        if not (0 < f < self.sample_rate / 2):
+            self.error = (f"mode frequency must be a number between 0 and {self.sample_rate / 2:g} Hz "
+                          f"(half the sample rate), was {value!r}.")
+            self._notify("error")
+            return None
+        return f
+
     def set_hit(self, hit: int, accepted: bool | None) -> bool:
         """Accept (True) or reject (False) a hit, overriding the checks; None = automatic."""
         hits = [int(h) for h in self.records["hit"].values]
@@ -286,7 +318,7 @@ class Analysis:
                                 **recipe.check_thresholds)
         fit_records, accept = fit_inputs(self.records, recipe, checks)
         key = (recipe.band, recipe.n_modes, tuple(sorted(accept.items())),
-               recipe.correct_exponential_window)
+               recipe.correct_exponential_window, tuple(recipe.add_modes), tuple(recipe.drop_modes))
         preview = (not full and recipe.window is not None and self._estimator is not None
                    and self._estimator_key == key)
         if preview:

@@ -128,6 +128,19 @@ def test_band_and_modes_and_reset(demo):
     assert a.recipe.band is None and a.recipe.n_modes is None
 
 
+def test_add_and_drop_modes_go_into_recipe_and_replay(demo, tmp_path):
+    a = Analysis(demo, recipe_path=tmp_path / "r.json")
+    assert a.drop_mode(205.0)  # demo truth: mode 2 at 204.4 Hz
+    assert a.recipe.drop_modes == [205.0] and a.result.sizes["mode"] == 3
+    assert_same_result(a.result, run_recipe(demo, a.recipe)[0])
+    assert load_recipe(tmp_path / "r.json").drop_modes == [205.0]
+    assert a.add_mode(205.0)  # adding where a drop was replaces the drop
+    assert a.recipe.drop_modes == [] and a.recipe.add_modes == [205.0]
+    assert a.result.sizes["mode"] == 4  # the mode is there already: no duplicate
+    assert a.add_mode("ninety") is False and "\n" not in a.error and "between 0 and" in a.error
+    assert a.clear_mode_edits() and a.recipe.add_modes == [] == a.recipe.drop_modes
+
+
 def test_open_restores_choices_after_restart(demo, tmp_path):
     path = save_records(demo, tmp_path / "tap.nc")
     a = Analysis.open(path)

@@ -135,6 +135,22 @@ def test_band_and_mode_count(desk):
     assert a.fig.layout.shapes[0].x1 == pytest.approx(0.45 * desk.analysis.sample_rate)
 
 
+def test_click_and_buttons_drop_and_restore_a_mode(desk):
+    a, p = desk.analysis, desk.modes
+    n_before = a.result.sizes["mode"]
+    f3 = float(a.result["frequency_hz"].values[2])  # demo truth: mode 3 near 572.3 Hz
+    # a click on the spectrum fills the box (plotly's click callback: points.xs)
+    p._on_click(None, SimpleNamespace(xs=[f3 + 1.234]), None)
+    assert p.mode_freq.value == pytest.approx(round(f3 + 1.234, 2))
+    p.drop_btn.click()
+    assert a.recipe.drop_modes == [p.mode_freq.value]
+    assert load_recipe(a.recipe_path).drop_modes == a.recipe.drop_modes  # autosaved
+    assert a.result.sizes["mode"] == n_before - 1 and len(p.fig.data[1].x) == n_before - 1
+    assert "dropped" in p.edits.value
+    p.clear_btn.click()
+    assert a.recipe.drop_modes == [] and a.result.sizes["mode"] == n_before and p.edits.value == ""
+
+
 def test_fit_panel_shows_model_and_quality(desk):
     p = desk.fit
     assert len(p.fig.data[0].x) > 10 and len(p.fig.data[1].x) > 10

@@ -17,6 +17,9 @@ from ._basis import natural
 from ._pencil import PencilOutput, find_poles, initial_modes
 from ._varpro import Problem, covariance, levenberg_marquardt, natural_with_cov, run_lmfit
 
+#: A fitted mode within this fraction of a frequency the user added is that added mode.
+ASKED_TOL = 0.03
+
 #: Most principal components kept for the fit (the signal rank is 2 per mode).
 MAX_COMPONENTS = 32
 
@@ -126,12 +129,17 @@ def fit_core(
     n_extra: int = 1,
     max_nfev: int | None = None,
     polish: bool = True,
+    seeds_hz: np.ndarray | None = None,
+    protect_hz: np.ndarray | None = None,
 ) -> CoreResult:
     """Shared poles of the weighted signals `y` (P, N) at times `t` from the window start.
 
     With `x0` (packed poles of an earlier fit) the pencil is skipped (fast refit). With
     ``polish=False`` the final lmfit pass is skipped (a first pass that a reweighted second
-    pass will polish); ``minimizer`` is then None.
+    pass will polish); ``minimizer`` is then None. `seeds_hz` adds a starting pole (1 %
+    damping) at each frequency not already within 1 % of a found one; a mode within 3 %
+    of a frequency in `protect_hz` (``ASKED_TOL``) is never dropped as weak (the user
+    asked for it).
     """
     from .._errors import EstimationError
 
@@ -151,7 +159,16 @@ def fit_core(
                 "no mode found above the noise in the searched band. Hint: check the "
                 "window (it should hold the ring-down), the band, or the hit selection."
             )
-        x0 = prob.pack(np.array([m[0] for m in modes]), np.array([m[1] for m in modes]))
+        sig0 = [m[0] for m in modes]
+        u0 = [m[1] for m in modes]
+        for f in np.atleast_1d(seeds_hz) if seeds_hz is not None else []:
+            w = 2 * np.pi * float(f)
+            found = [natural(a, b)[0] for a, b in zip(sig0, u0, strict=True)]
+            if any(abs(wf - w) < 0.01 * w for wf in found if np.isfinite(wf)):
+                continue
+            sig0.append(0.01 * w)
+            u0.append(w * w * (1 - 1e-4))
+        x0 = prob.pack(np.array(sig0), np.array(u0))
     thr = significance_threshold(r)
     x = np.asarray(x0, float)
     res = None
@@ -179,6 +196,11 @@ def fit_core(
                     dup[i if signif[i] < signif[j] else j] = True
         drop = ~ok | dup
         weak = lr < thr
+        if protect_hz is not None and len(protect_hz):
+            fn_now = np.array([natural(a, b)[0] for a, b in zip(sigma, u, strict=True)]) / (2 * np.pi)
+            asked = np.array([np.any(np.abs(f - np.asarray(protect_hz)) < ASKED_TOL * np.asarray(protect_hz))
+                              for f in fn_now])
+            weak &= ~asked
         if not drop.any() and not weak.any():
             break
         if drop.any():

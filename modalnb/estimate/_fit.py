@@ -15,7 +15,7 @@ from .._errors import EstimationError
 from .._pulse import contact_end, pulse_bounds
 from ..records import get_sample_rate, has_force, validate_records
 from ._basis import is_near_critical, pole_of, residues_from_coefficients
-from ._core import CoreResult, compress, fit_core
+from ._core import ASKED_TOL, CoreResult, compress, fit_core, significance_threshold
 from ._varpro import Problem, levenberg_marquardt, natural_with_cov
 
 #: Least pre-trigger samples per hit for a noise estimate (common practice).
@@ -189,6 +189,18 @@ def _stabilisation(core: CoreResult) -> xr.Dataset:
     )
 
 
+def _freq_list(name: str, value: Any) -> np.ndarray:
+    if value is None:
+        return np.zeros(0)
+    try:
+        out = np.sort(np.asarray([float(v) for v in np.atleast_1d(value)], float))
+    except (TypeError, ValueError):
+        raise EstimationError(f"`{name}` must be frequencies in Hz, got {value!r}.") from None
+    if not np.all(np.isfinite(out) & (out > 0)):
+        raise EstimationError(f"`{name}` frequencies must be positive and finite, got {value!r}.")
+    return out
+
+
 @contextmanager
 def _blas_limit(n: int | None) -> Iterator[None]:
     """Limit the BLAS thread pools to `n` threads for the duration (None: leave them).
@@ -245,8 +257,12 @@ class ModeFit:
         max_order: int | None = None,
         scatter: bool = True,
         blas_threads: int | None = 1,
+        add_modes: Sequence[float] | None = None,
+        drop_modes: Sequence[float] | None = None,
     ):
         self.blas_threads = blas_threads
+        self.add_modes = add_modes
+        self.drop_modes = drop_modes
         self.band = band
         self.window = window
         self.n_modes = n_modes
@@ -313,8 +329,10 @@ class ModeFit:
         f_search = 0.45 * fs
         n_live = int(prep.live.sum())
         reweight = prep.noise_from != "pre-trigger samples" and n_live > 1
+        asked = _freq_list("add_modes", self.add_modes)
+        seeds = asked if x0 is None and asked.size else None
         core = fit_core(y, t_rel, fs, f_max=f_search, x0=x0, max_order=self.max_order,
-                        polish=not reweight)
+                        polish=not reweight, seeds_hz=seeds, protect_hz=asked)
         weight = prep.weight
         if reweight:
             # reweight each channel by its residual RMS and refine (equal noise after weighting)
@@ -326,7 +344,8 @@ class ModeFit:
             weight[prep.live] = weight[prep.live] / np.where(rms > 0, rms, 1.0)
             pencil = core.pencil
             y = _stack(prep, weight)
-            core = fit_core(y, t_rel, fs, f_max=f_search, x0=core.x, max_order=self.max_order)
+            core = fit_core(y, t_rel, fs, f_max=f_search, x0=core.x, max_order=self.max_order,
+                            protect_hz=asked)
             core.pencil = pencil
             prep.noise_from = "residual RMS of a first fit"
         self._x = core.x
@@ -386,9 +405,24 @@ class ModeFit:
                 f"no mode found in the band {band[0]:g}..{band[1]:g} Hz (modes fitted at "
                 f"{', '.join(f'{f:.4g}' for f in core.fn)} Hz). Hint: widen the band."
             )
+        for f in _freq_list("drop_modes", self.drop_modes):
+            # the user leaves the fitted mode nearest f out of the table (it stays in the model)
+            near = min(sel, key=lambda k: abs(core.fn[k] - f)) if sel else None
+            if near is None or abs(core.fn[near] - f) > max(0.05 * f, 1.0):
+                raise EstimationError(
+                    f"drop_modes: no fitted mode near {f:g} Hz (within 5 %; modes at "
+                    f"{', '.join(f'{core.fn[k]:.4g}' for k in sorted(sel, key=lambda k: core.fn[k]))} Hz). "
+                    f"Hint: remove {f:g} "
+                    "from the dropped modes."
+                )
+            sel.remove(near)
+        if not sel:
+            raise EstimationError("every mode in the band was dropped (drop_modes). Hint: "
+                                  "keep at least one.")
         if self.n_modes is not None:
             sel = sorted(sel, key=lambda k: -energy[k])[: int(self.n_modes)]
         sel = sorted(sel, key=lambda k: core.fn[k])
+        asked = _freq_list("add_modes", self.add_modes)
         m = len(sel)
         scat_f, scat_z = self._per_hit_scatter(prep, core, weight)
         use_force = has_force(records)
@@ -466,6 +500,10 @@ class ModeFit:
                 notes.append("covariance singular: uncertainties undefined")
             elif zstd > 0.5 * z:
                 notes.append("poorly determined: damping_ratio_std exceeds half the damping ratio")
+            if asked.size and np.any(np.abs(fn - asked) < ASKED_TOL * asked):
+                notes.append("added by the user (add_modes)")
+                if energy[k] < significance_threshold(core.prob.data_t.shape[1]):
+                    notes.append("below the noise significance: it may not be a mode")
             if not self.scatter:
                 notes.append("scatter not computed (scatter=False)")
             elif n_hit_acc < 3:
@@ -518,6 +556,11 @@ class ModeFit:
             "window": [float(prep.t_win[0]), float(prep.t_win[-1])],
             "window_requested": None if window is None else [float(v) for v in window],
             "n_modes": None if self.n_modes is None else int(self.n_modes),
+            "add_modes": _freq_list("add_modes", self.add_modes).tolist(),
+            "add_modes_not_found": [
+                float(f) for f in _freq_list("add_modes", self.add_modes)
+                if not np.any(np.abs(cols["frequency_hz"] - f) < ASKED_TOL * f)],
+            "drop_modes": _freq_list("drop_modes", self.drop_modes).tolist(),
             "max_order": self.max_order,
             "modes_fitted": int(m_all),
             "hits_used": [int(h) for h in prep.hits[prep.acc_idx]],
@@ -554,6 +597,8 @@ def fit_modes(
     scatter: bool = True,
     recipe: Any = None,
     blas_threads: int | None = 1,
+    add_modes: Sequence[float] | None = None,
+    drop_modes: Sequence[float] | None = None,
 ) -> xr.Dataset:
     """Natural frequencies, damping ratios and shapes of a record set, with uncertainties.
 
@@ -581,6 +626,13 @@ def fit_modes(
         Highest pencil order per sub-band (default 20).
     scatter : bool
         Compute the hit-to-hit scatter (per-hit pole refits) when >= 3 hits are accepted.
+    add_modes : sequence of float, optional
+        Frequencies (Hz) of modes the automatic search missed: each seeds a pole (1 %
+        damping) that the fit refines and keeps (status "added by the user", with a warning
+        when its energy is within noise).
+    drop_modes : sequence of float, optional
+        Frequencies (Hz) of fitted modes to leave out of the table (the nearest mode within
+        5 %). The mode stays in the fitted model, so its neighbours are not biased.
     blas_threads : int or None
         BLAS threads during the fit (default 1: fastest on a busy machine and inside
         dask workers; None leaves the thread pools as they are).
@@ -637,7 +689,8 @@ def fit_modes(
     """
     if recipe is not None:
         given = [name for name, v in (("band", band), ("window", window), ("n_modes", n_modes),
-                                      ("accept", accept)) if v is not None]
+                                      ("accept", accept), ("add_modes", add_modes),
+                                      ("drop_modes", drop_modes)) if v is not None]
         if given:
             raise EstimationError(
                 f"fit_modes: pass either recipe= or {', '.join(given)}, not both (the recipe "
@@ -649,16 +702,18 @@ def fit_modes(
         rec = recipe if isinstance(recipe, Recipe) else load_recipe(recipe)
         return run_recipe(records, rec)[0]
     est = ModeFit(band=band, window=window, n_modes=n_modes, accept=accept,
-                  max_order=max_order, scatter=scatter, blas_threads=blas_threads)
+                  max_order=max_order, scatter=scatter, blas_threads=blas_threads,
+                  add_modes=add_modes, drop_modes=drop_modes)
     from ._xcheck import with_cross_checks
 
     result = with_cross_checks(records, est.fit(records).result_)
-    result.attrs["recipe"] = _recipe_of_call(records, band, window, n_modes, accept, result)
+    result.attrs["recipe"] = _recipe_of_call(records, band, window, n_modes, accept, result,
+                                             add_modes, drop_modes)
     return result
 
 
 def _recipe_of_call(records: xr.Dataset, band: Any, window: Any, n_modes: Any, accept: Any,
-                    result: xr.Dataset) -> str:
+                    result: xr.Dataset, add_modes: Any = None, drop_modes: Any = None) -> str:
     """The recipe (JSON) that replays this call: its choices, hit decisions as overrides.
 
     With ``accept=None`` the decisions are those of the default hit checks, which a replay
@@ -674,6 +729,7 @@ def _recipe_of_call(records: xr.Dataset, band: Any, window: Any, n_modes: Any, a
     rec = recipe_for(records, Recipe(
         band=None if band is None else tuple(band), window=None if window is None else tuple(window),
         n_modes=None if n_modes is None else int(n_modes), hit_overrides=overrides,
+        add_modes=list(add_modes or []), drop_modes=list(drop_modes or []),
         source=str(records.attrs.get("source", "")) or None,
     ))
     return rec.to_json()

@@ -352,10 +352,27 @@ class ModesPanel(Panel):
         self.stab.add_scatter(x=[], y=[], mode="markers", name="stable across orders",
                               marker={"symbol": "diamond", "color": STABLE, "size": 7})
         self.stab_note = w.HTML()
+        # add or drop a mode by frequency: type it, or click on the spectrum to fill the box
+        self.mode_freq = w.BoundedFloatText(value=0.0, min=0.0, max=nyq, step=0.1,
+                                            description="mode at [Hz]")
+        self.mode_freq.add_class("modalnb-mode-frequency")
+        self.add_btn = w.Button(description="add a mode here", tooltip="seed a pole the search missed")
+        self.add_btn.add_class("modalnb-add-mode")
+        self.drop_btn = w.Button(description="drop the nearest mode", tooltip="leave it out of the table")
+        self.drop_btn.add_class("modalnb-drop-mode")
+        self.clear_btn = w.Button(description="undo mode edits")
+        self.add_btn.on_click(lambda _b: self.analysis.add_mode(self.mode_freq.value))
+        self.drop_btn.on_click(lambda _b: self.analysis.drop_mode(self.mode_freq.value))
+        self.clear_btn.on_click(lambda _b: self.analysis.clear_mode_edits())
+        self.edits = w.HTML()
+        self.edits.add_class("modalnb-mode-edits")
+        self.fig.data[0].on_click(self._on_click)
         self._finish([
             w.HTML("<b>Mode finding.</b> Choose the band and, if you like, how many modes to keep "
-                   "(the strongest by energy)."),
+                   "(the strongest by energy). Click on the spectrum (or type) to pick a "
+                   "frequency, then add a mode the search missed or drop one from the table."),
             self.band, w.HBox([self.auto_band, self.n_modes]),
+            w.HBox([self.mode_freq, self.add_btn, self.drop_btn, self.clear_btn]), self.edits,
             fig_box(self.fig, "modalnb-spectrum-figure"),
             fig_box(self.stab, "modalnb-stability-figure"), self.stab_note,
         ])
@@ -373,6 +390,11 @@ class ModesPanel(Panel):
         xr_ = getattr(selector, "xrange", None)
         if xr_ and xr_[1] > xr_[0]:
             self.analysis.set_band(max(float(xr_[0]), 0.0), float(xr_[1]))
+
+    def _on_click(self, _trace: Any, points: Any, _state: Any = None) -> None:
+        xs = list(getattr(points, "xs", []) or [])
+        if xs:
+            self.mode_freq.value = round(float(xs[0]), 2)
 
     def refresh(self) -> None:
         a = self.analysis
@@ -396,6 +418,13 @@ class ModesPanel(Panel):
             else:
                 self.fig.data[1].x, self.fig.data[1].y = [], []
             self.fig.layout.shapes[0].x0, self.fig.layout.shapes[0].x1 = band
+        rec = a.recipe
+        parts = []
+        if rec.add_modes:
+            parts.append("added: " + ", ".join(f"{f:g} Hz" for f in rec.add_modes))
+        if rec.drop_modes:
+            parts.append("dropped: " + ", ".join(f"{f:g} Hz" for f in rec.drop_modes))
+        self.edits.value = ("<i>mode edits (in the recipe) — " + esc("; ".join(parts)) + "</i>") if parts else ""
         stab = a.stabilisation()
         with self.stab.batch_update():
             if stab is None:
