@@ -172,7 +172,9 @@ def report_html(
         parts.append(fig.to_html(full_html=False, include_plotlyjs=(i == 0), config={"displaylogo": False}))
     m_rows = modes_rows(result)
     m_cols = [c for c in ("mode", "frequency_hz", "frequency_hz_std", "damping_ratio", "damping_ratio_std", "regime",
-                          "q_factor", "damped_frequency_hz", "status") if not m_rows or c in m_rows[0]]
+                          "q_factor", "damped_frequency_hz", "xcheck_log_decrement_damping",
+                          "xcheck_half_power_damping", "xcheck_hilbert_damping", "status")
+              if not m_rows or c in m_rows[0]]
     s_rows = []
     for k, mode in enumerate(result["mode"].values.tolist()):
         for c, ch in enumerate(result["channel"].values.tolist()):
