@@ -154,7 +154,8 @@ def test_click_and_buttons_drop_and_restore_a_mode(desk):
 def test_fit_panel_shows_model_and_quality(desk):
     p = desk.fit
     # the cross-checks beside the fit: one row per mode, three methods (issue 5 §1.4)
-    assert "cross-checks" in p.cross.value and "hilbert" in p.cross.value
+    assert "cross-checks" in p.cross.value and "Hilbert envelope" in p.cross.value
+    assert "biased low in noise" in p.cross.value  # each method with its known bias
     assert p.cross.value.count("<tr") == desk.analysis.result.sizes["mode"] + 1
     assert len(p.fig.data[0].x) > 10 and len(p.fig.data[1].x) > 10
     t0, t1 = desk.analysis.fit_window()

@@ -184,8 +184,8 @@ def _stabilisation(core: CoreResult) -> xr.Dataset:
             "stable": ("pole", arr[:, 5].astype(bool)),
         },
         attrs={"description": "poles versus pencil order; pass 0 is the wide-band pass, "
-               "passes 1.. the sub-bands; stable = within 1 % in frequency of a pole of the "
-               "previous order"},
+               "passes 1.. the sub-bands; stable = a pole of the previous order within 1 % in "
+               "natural frequency and 5 % in damping ratio (common practice)"},
     )
 
 

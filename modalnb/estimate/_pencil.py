@@ -121,13 +121,15 @@ def _sweep(
             keep &= lam.imag >= -1e-9 * np.abs(lam)
         lam = lam[keep]
         fn, zeta = _natural(lam)
+        # stable for the chart (common practice): a pole of the previous order within 1 % in
+        # natural frequency and 5 % in damping ratio (frequency alone marks noise poles too)
         stable = np.zeros(lam.size, bool)
         if prev is not None and prev.size:
-            for i, lk in enumerate(lam):
-                d = np.abs(prev - lk)
-                j = int(np.argmin(d))
-                tol = max(0.01 * abs(lk), 0.05 * abs(lk.real))
-                stable[i] = d[j] <= tol
+            pfn, pz = _natural(prev)
+            for i in range(lam.size):
+                j = int(np.argmin(np.abs(pfn - fn[i])))
+                stable[i] = (abs(pfn[j] - fn[i]) <= 0.01 * fn[i]
+                             and abs(pz[j] - zeta[i]) <= 0.05 * max(zeta[i], 1e-4))
         for lk, f, zz, st in zip(lam, fn, zeta, stable, strict=True):
             out.rows.append((pass_id, m, float(lk.imag / TWO_PI), float(f), float(zz), bool(st)))
         per_order.append(lam)

@@ -435,11 +435,29 @@ class ModesPanel(Panel):
                 order, freq, stable = stab
                 self.stab.data[0].x, self.stab.data[0].y = freq[~stable], order[~stable]
                 self.stab.data[1].x, self.stab.data[1].y = freq[stable], order[stable]
-                self.stab_note.value = ""
+                # the fitted modes as dashed lines: columns of stable poles should line up
+                fk = r["frequency_hz"].values if r is not None and r.sizes.get("mode", 0) else []
+                self.stab.layout.shapes = [
+                    dict(type="line", xref="x", yref="paper", x0=float(f0), x1=float(f0), y0=0, y1=1,
+                         line={"color": MODE, "width": 1, "dash": "dash"}) for f0 in fk]
+                self.stab_note.value = ("<i>dashed: fitted modes. Lower orders are the narrow "
+                                        "sub-band pencils, higher orders the wide-band one.</i>")
 
 
 # ====================================================================== 4. fit check
+def _phase_text(deg: float) -> str:
+    """Phase in whole degrees within (-180, 180]: -179.7 shows as +180, -0.2 as +0."""
+    r = int(round(float(deg)))
+    if r <= -180:
+        r += 360
+    return f"{r:+d}°"
+
+
 _CROSS = ("log_dec", "half_power", "envelope", "hilbert")
+_CROSS_LABELS = {"log_decrement": "δ (from the fit)",
+                 "xcheck_log_decrement_damping": "ζ, log decrement",
+                 "xcheck_half_power_damping": "ζ, half-power",
+                 "xcheck_hilbert_damping": "ζ, Hilbert envelope"}
 
 
 class FitPanel(Panel):
@@ -456,7 +474,7 @@ class FitPanel(Panel):
         self.hit.observe(lambda ch: self.refresh(), "value")
         self.channel.observe(lambda ch: self.refresh(), "value")
         self.fig = go.FigureWidget(make_subplots(
-            rows=3, cols=1, vertical_spacing=0.09,
+            rows=3, cols=1, vertical_spacing=0.13,
             subplot_titles=("measured and model in the fit window", "residual (measured − model)",
                             "spectra: measured and residual")))
         self.fig.update_layout(height=620, template="plotly_white",
@@ -496,9 +514,11 @@ class FitPanel(Panel):
             for i, yy in enumerate((y[c], m[c], r[c])):
                 tx, ty = decimate(t, yy)
                 self.fig.data[i].x, self.fig.data[i].y = tx, ty
-            for i, yy in enumerate((y[c], r[c])):
-                fx, fy = decimate(fr, np.abs(np.fft.rfft(yy)) / t.size)
-                self.fig.data[3 + i].x, self.fig.data[3 + i].y = fx, np.maximum(fy, 1e-12)
+            spectra = [np.abs(np.fft.rfft(yy - yy.mean())) / t.size for yy in (y[c], r[c])]
+            floor = 1e-6 * max(float(sp.max()) for sp in spectra) or 1e-300  # 120 dB below the peak
+            for i, sp in enumerate(spectra):
+                fx, fy = decimate(fr, sp)
+                self.fig.data[3 + i].x, self.fig.data[3 + i].y = fx, np.maximum(fy, floor)
         self.quality.value = f"<b>fit quality, hit {h}</b>" + table_html(
             a.channel_quality(h), [("channel", "channel"), ("r_squared", "R²"),
                                    ("residual_rms", "residual RMS")], "modalnb-quality-table")
@@ -508,9 +528,13 @@ class FitPanel(Panel):
             rows = [{"mode": int(mm), **{n: res[n].values[k].item() for n in names}}
                     for k, mm in enumerate(res["mode"].values)]
             rows_f = [{**row, "damping_ratio": res["damping_ratio"].values[k].item()} for k, row in enumerate(rows)]
+            bias = {n: str(res[n].attrs.get("bias", "")) for n in names}
+            label = {n: _CROSS_LABELS.get(n, n.replace("_", " ")) for n in names}
             self.cross.value = "<b>cross-checks (each with its known bias)</b>" + table_html(
-                rows_f, [("mode", "mode"), ("damping_ratio", "fitted ζ")] + [(n, n.replace("_", " ")) for n in names],
-                "modalnb-cross-table")
+                rows_f, [("mode", "mode"), ("damping_ratio", "fitted ζ")] + [(n, label[n]) for n in names],
+                "modalnb-cross-table") + "".join(
+                f"<div class='modalnb-cross-bias'><i>{esc(label[n])}</i>: {esc(bias[n])}</div>"
+                for n in names if bias[n])
         else:
             self.cross.value = "<i>The estimation engine reported no cross-checks.</i>"
 
@@ -608,7 +632,7 @@ class TablePanel(Panel):
         for c, ch in enumerate(a.channels):
             row = {"channel": ch}
             for k, mm in enumerate(r["mode"].values.tolist()):
-                row[f"m{mm}"] = f"{amp[k, c]:.3f} ∠ {ph[k, c]:+.0f}°"
+                row[f"m{mm}"] = f"{amp[k, c]:.3f} ∠ {_phase_text(ph[k, c])}"
             srows.append(row)
         self.shapes.value = "<b>shapes: amplitude ∠ phase</b>" + table_html(
             srows, [("channel", "channel")] + [(f"m{mm}", f"mode {mm}") for mm in r["mode"].values.tolist()],
