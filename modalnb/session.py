@@ -115,6 +115,7 @@ class Analysis:
         self._listeners: list[Listener] = []
         self._spectrum: tuple[tuple[int, ...], np.ndarray, np.ndarray] | None = None
         self._model_cache: tuple[tuple[int, int], Any] | None = None
+        self._xcheck_cache: tuple[xr.Dataset, xr.Dataset] | None = None
         self._estimator: Any = None
         self._estimator_key: Any = None
         self._checks_key: Any = None
@@ -329,7 +330,8 @@ class Analysis:
             result = est.result_
             self._estimator, self._estimator_key = est, key
         self._checks_key = hits_key
-        result = finish_result(result, recipe, checks, self.records)
+        # a preview skips the cross-checks (:meth:`cross_checks` computes them on demand)
+        result = finish_result(result, recipe, checks, None if preview else self.records)
         return result, checks, preview
 
     # --- files ---------------------------------------------------------------------
@@ -474,6 +476,21 @@ class Analysis:
         amp = self.result["shape_amplitude"].values
         ph = np.deg2rad(self.result["shape_phase_deg"].values)
         return amp * np.exp(1j * ph)
+
+    def cross_checks(self) -> xr.Dataset | None:
+        """The result with the damping cross-checks beside each mode (computed once per result).
+
+        None while there is no result. See :func:`modalnb.estimate.cross_checks`.
+        """
+        if self.result is None:
+            return None
+        if "xcheck_note" in self.result:
+            return self.result
+        if self._xcheck_cache is None or self._xcheck_cache[0] is not self.result:
+            from .estimate import with_cross_checks
+
+            self._xcheck_cache = (self.result, with_cross_checks(self.records, self.result))
+        return self._xcheck_cache[1]
 
     def mac_modes(self) -> np.ndarray:
         """MAC matrix between the result's modes (Allemang & Brown 1982)."""

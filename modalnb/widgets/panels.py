@@ -522,7 +522,7 @@ class FitPanel(Panel):
         self.quality.value = f"<b>fit quality, hit {h}</b>" + table_html(
             a.channel_quality(h), [("channel", "channel"), ("r_squared", "R²"),
                                    ("residual_rms", "residual RMS")], "modalnb-quality-table")
-        res = a.result
+        res = a.cross_checks()
         names = [n for n in res.data_vars if res[n].dims == ("mode",) and any(k in n for k in _CROSS)]
         if names:
             rows = [{"mode": int(mm), **{n: res[n].values[k].item() for n in names}}
