@@ -59,9 +59,8 @@ def contact_end(
     For a clean hit this is the end of the main pulse (:func:`pulse_bounds`); after a
     double hit it is the end of the last later excursion above ``fraction`` of the peak
     (and above ``noise_factor`` times the force noise, from the median absolute second
-    difference), so a
-    fit window that starts there holds free decay only (common practice: fit after the
-    last contact).
+    difference), so a fit window that starts there holds free decay only (common
+    practice: fit after the last contact).
 
     Examples
     --------
