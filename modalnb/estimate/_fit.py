@@ -173,7 +173,7 @@ def _force_spectrum(records: xr.Dataset, prep: _Prepared, lam: complex) -> np.nd
 
 def _stabilisation(core: CoreResult) -> xr.Dataset:
     rows = core.pencil.rows if core.pencil is not None else []
-    arr = np.array(rows, dtype=float).reshape(-1, 6)
+    arr = np.array(rows, dtype=float).reshape(-1, 7)
     return xr.Dataset(
         {
             "pencil_pass": ("pole", arr[:, 0].astype(int)),
@@ -182,10 +182,13 @@ def _stabilisation(core: CoreResult) -> xr.Dataset:
             "damped_frequency_hz": ("pole", arr[:, 2]),
             "damping_ratio": ("pole", arr[:, 4]),
             "stable": ("pole", arr[:, 5].astype(bool)),
+            "significance": ("pole", arr[:, 6], {"long_name": "pole energy over the residual "
+                                                 "variance of its order's fit"}),
         },
         attrs={"description": "poles versus pencil order; pass 0 is the wide-band pass, "
                "passes 1.. the sub-bands; stable = a pole of the previous order within 1 % in "
-               "natural frequency and 5 % in damping ratio (common practice)"},
+               "natural frequency and 5 % in damping ratio (common practice), and energy "
+               "above the candidate significance limit"},
     )
 
 

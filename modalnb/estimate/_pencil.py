@@ -41,8 +41,9 @@ class PencilOutput:
     """Candidates and the stabilisation records of every order swept."""
 
     candidates: list[Candidate] = field(default_factory=list)
-    # rows of (pass id, order, frequency_hz (damped), natural_hz, damping_ratio, stable)
-    rows: list[tuple[int, int, float, float, float, bool]] = field(default_factory=list)
+    # rows of (pass id, order, frequency_hz (damped), natural_hz, damping_ratio, stable,
+    # significance = pole energy over the residual variance of that order's fit)
+    rows: list[tuple[int, int, float, float, float, bool, float]] = field(default_factory=list)
 
 
 def _signal_space(sig: np.ndarray, k_rows: int, n_vec: int) -> tuple[np.ndarray, np.ndarray]:
@@ -130,8 +131,14 @@ def _sweep(
                 j = int(np.argmin(np.abs(pfn - fn[i])))
                 stable[i] = (abs(pfn[j] - fn[i]) <= 0.01 * fn[i]
                              and abs(pz[j] - zeta[i]) <= 0.05 * max(zeta[i], 1e-4))
-        for lk, f, zz, st in zip(lam, fn, zeta, stable, strict=True):
-            out.rows.append((pass_id, m, float(lk.imag / TWO_PI), float(f), float(zz), bool(st)))
+        if lam.size:
+            e_m, v_m = _energies(sig, np.exp((lam - 1j * TWO_PI * shift_hz) * dt))
+            signif = e_m / max(v_m, 1e-300)
+        else:
+            signif = np.zeros(0)
+        for lk, f, zz, st, sg in zip(lam, fn, zeta, stable, signif, strict=True):
+            out.rows.append((pass_id, m, float(lk.imag / TWO_PI), float(f), float(zz), bool(st),
+                             float(sg)))
         per_order.append(lam)
         prev = lam
     # candidates: top-order poles that reappear (within tolerance) in the two orders below
@@ -248,6 +255,9 @@ def find_poles(
     if min_significance is None:
         min_significance = 3.0 * significance_threshold(min(p, 8))
     out.candidates = [c for c in out.candidates if c.significance >= min_significance]
+    # the chart calls a pole stable only when it also carries energy above the same limit
+    # (noise poles of an over-specified order can be stable in frequency and damping)
+    out.rows = [(*r[:5], bool(r[5] and r[6] >= min_significance), r[6]) for r in out.rows]
     return out
 
 
