@@ -177,6 +177,33 @@ def test_reject_hit_changes_count_and_table(nb, shoot):
     assert nb.errors() == []
 
 
+def test_drop_a_mode_by_frequency_and_undo(nb, shoot):
+    shoot(nb.page)
+    nb.tab("Modal table")
+    table = nb.text(".modalnb-modes-table")
+    f3 = load_demo_truth()["modes"][2]["frequency_hz"]  # FE model of the demo boom: 572.3 Hz
+    assert f"{f3:.6g}"[:5] in table
+    nb.tab("Modes")
+    box = nb.page.locator(".modalnb-mode-frequency input").first
+    box.fill("575")
+    box.press("Enter")
+    nb.page.locator("button.modalnb-drop-mode").click()
+    nb.tab("Modal table")
+    nb.page.wait_for_function(
+        "(old) => (document.querySelector('.modalnb-modes-table') || {}).textContent !== old",
+        arg=table, timeout=30_000)
+    assert f"{f3:.6g}"[:5] not in nb.text(".modalnb-modes-table")
+    assert "[575.0]" in nb.py("print(analysis.recipe.drop_modes)")
+    nb.tab("Modes")
+    nb.page.locator(".modalnb-modes button", has_text="undo mode edits").click()
+    nb.tab("Modal table")
+    nb.page.wait_for_function(
+        "(old) => (document.querySelector('.modalnb-modes-table') || {}).textContent === old",
+        arg=table, timeout=30_000)
+    assert "[]" in nb.py("print(analysis.recipe.drop_modes)")
+    assert nb.errors() == []
+
+
 def test_export_writes_the_numbers_shown(nb, shoot):
     shoot(nb.page)
     nb.tab("Modal table")
