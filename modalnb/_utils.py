@@ -71,3 +71,24 @@ def check_positive(name: str, value: float) -> float:
     if not (v > 0 and v < float("inf")):
         raise ModalnbError(f"`{name}` must be a positive finite number, was {value!r}.")
     return v
+
+
+def frequency_list(name: str, value: object, error: type[ModalnbError] = ModalnbError) -> list[float]:
+    """Sorted positive, finite frequencies (Hz) from `value`; None gives ``[]``.
+
+    Raises `error` with a one-line message that starts with `name` otherwise.
+
+    Examples
+    --------
+    >>> frequency_list("`add_modes`", [90, 40.5])
+    [40.5, 90.0]
+    """
+    if value is None:
+        return []
+    try:
+        out = sorted(float(v) for v in (value if isinstance(value, Iterable) else [value]))
+    except (TypeError, ValueError):
+        raise error(f"{name} must be a list of frequencies in Hz, was {value!r}.") from None
+    if any(not 0 < f < float("inf") for f in out):
+        raise error(f"{name} frequencies must be positive and finite, was {value!r}.")
+    return out

@@ -12,7 +12,7 @@ import xarray as xr
 from .recipe import Recipe
 from .records import records_checksum, validate_records
 
-__all__ = ["run_recipe", "recipe_for", "fit_inputs", "finish_result"]
+__all__ = ["run_recipe", "recipe_for", "recipe_checks", "fit_recipe", "fit_inputs", "finish_result"]
 
 
 def recipe_for(records: xr.Dataset, recipe: Recipe | None = None, **changes: Any) -> Recipe:
@@ -50,17 +50,32 @@ def run_recipe(records: xr.Dataset, recipe: Recipe, *, progress: Any = None) -> 
     checks : xarray.Dataset
         The hit checks (:func:`modalnb.check_hits` layout) after the recipe's overrides.
     """
-    from .checks import check_hits
-    from .estimate import fit_modes
-
     validate_records(records)
     say = progress or (lambda _msg: None)
     say("checking hits")
-    checks = check_hits(records, overrides=recipe.hit_overrides or None, **recipe.check_thresholds)
+    checks = recipe_checks(records, recipe)
     say("fitting modes")
+    result, _ = fit_recipe(records, recipe, checks)
+    return result, checks
+
+
+def recipe_checks(records: xr.Dataset, recipe: Recipe) -> xr.Dataset:
+    """The hit checks with the recipe's thresholds and overrides (:func:`modalnb.check_hits`)."""
+    from .checks import check_hits
+
+    return check_hits(records, overrides=recipe.hit_overrides or None, **recipe.check_thresholds)
+
+
+def fit_recipe(records: xr.Dataset, recipe: Recipe, checks: xr.Dataset) -> tuple[xr.Dataset, Any]:
+    """The fit step of :func:`run_recipe`: the table and the fitted ``ModeFit`` (for refits).
+
+    The cross-checks run on the records the engine saw (:func:`fit_inputs`).
+    """
+    from .estimate import ModeFit
+
     fit_records, accept = fit_inputs(records, recipe, checks)
-    result = fit_modes(fit_records, **recipe.fit_kwargs(), accept=accept)
-    return finish_result(result, recipe, checks, records), checks
+    est = ModeFit(**recipe.fit_kwargs(), accept=accept).fit(fit_records)
+    return finish_result(est.result_, recipe, checks, fit_records), est
 
 
 def fit_inputs(records: xr.Dataset, recipe: Recipe, checks: xr.Dataset) -> tuple[xr.Dataset, dict[int, bool]]:

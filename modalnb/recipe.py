@@ -17,6 +17,7 @@ from pathlib import Path
 from typing import Any
 
 from ._errors import ModalnbError
+from ._utils import frequency_list
 
 __all__ = ["Recipe", "RecipeError", "load_recipe", "save_recipe", "RECIPE_FORMAT", "RECIPE_VERSION"]
 
@@ -102,8 +103,8 @@ class Recipe:
         if self.n_modes is not None:
             if isinstance(self.n_modes, bool) or not isinstance(self.n_modes, int) or self.n_modes < 1:
                 raise RecipeError(f"recipe `n_modes` must be a positive integer or null, was {self.n_modes!r}.")
-        self.add_modes = _freqs("add_modes", self.add_modes)
-        self.drop_modes = _freqs("drop_modes", self.drop_modes)
+        self.add_modes = frequency_list("recipe `add_modes`", self.add_modes, RecipeError)
+        self.drop_modes = frequency_list("recipe `drop_modes`", self.drop_modes, RecipeError)
         overrides: dict[int, bool] = {}
         for k, v in dict(self.hit_overrides).items():
             try:
@@ -183,18 +184,6 @@ class Recipe:
         """Keyword arguments of :func:`modalnb.fit_modes` that this recipe fixes."""
         return {"band": self.band, "window": self.window, "n_modes": self.n_modes,
                 "add_modes": list(self.add_modes) or None, "drop_modes": list(self.drop_modes) or None}
-
-
-def _freqs(name: str, value: Any) -> list[float]:
-    if value is None:
-        return []
-    try:
-        out = sorted(float(v) for v in value)
-    except (TypeError, ValueError):
-        raise RecipeError(f"recipe `{name}` must be a list of frequencies in Hz, was {value!r}.") from None
-    if any(not (f > 0 and f < float("inf")) for f in out):
-        raise RecipeError(f"recipe `{name}` frequencies must be positive and finite, was {value!r}.")
-    return out
 
 
 def _as_bool(value: Any, name: str) -> bool:

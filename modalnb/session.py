@@ -29,14 +29,12 @@ import numpy as np
 import xarray as xr
 
 from ._errors import ModalnbError
-from .estimate import mac
-from .estimate._model import model_poles as _poles
-from .estimate._model import refit_model
-from .pipeline import finish_result, fit_inputs, recipe_for
+from .estimate import mac_matrix
+from .pipeline import finish_result, fit_inputs, fit_recipe, recipe_checks, recipe_for
 from .recipe import Recipe, RecipeError, load_recipe, save_recipe
 from .records import get_sample_rate, records_checksum, validate_records
 
-__all__ = ["Analysis", "default_recipe_path", "mac", "refit_model"]
+__all__ = ["Analysis", "default_recipe_path"]
 
 #: Events sent to subscribers: ``busy`` (a slow step starts; ``analysis.busy`` holds its
 #: text), ``result`` (a new result), ``error`` (a refit failed; ``analysis.error``).
@@ -118,7 +116,7 @@ class Analysis:
         self._xcheck_cache: tuple[xr.Dataset, xr.Dataset] | None = None
         self._estimator: Any = None
         self._estimator_key: Any = None
-        self._checks_key: Any = None
+        self._checks_cache: tuple[Any, xr.Dataset] | None = None
         #: True when :attr:`result` came from the fast refit (see :meth:`_fit`).
         self.preview = False
         checksum = records_checksum(records)
@@ -221,19 +219,19 @@ class Analysis:
 
     def add_mode(self, frequency_hz: float) -> bool:
         """Say a mode is at `frequency_hz` (Hz) that the automatic search missed; refit."""
-        f = self._frequency(frequency_hz)
-        if f is None:
-            return False
-        drop = [d for d in self.recipe.drop_modes if abs(d - f) > 0.05 * f]
-        return self._change(add_modes=sorted({*self.recipe.add_modes, f}), drop_modes=drop)
+        return self._edit_modes(frequency_hz, "add_modes", "drop_modes")
 
     def drop_mode(self, frequency_hz: float) -> bool:
         """Leave the fitted mode nearest `frequency_hz` (Hz) out of the table; refit."""
-        f = self._frequency(frequency_hz)
+        return self._edit_modes(frequency_hz, "drop_modes", "add_modes")
+
+    def _edit_modes(self, value: Any, into: str, out_of: str) -> bool:
+        """Put the frequency `value` into one recipe list, removing it (within 5 %) from the other."""
+        f = self._frequency(value)
         if f is None:
             return False
-        add = [a for a in self.recipe.add_modes if abs(a - f) > 0.05 * f]
-        return self._change(drop_modes=sorted({*self.recipe.drop_modes, f}), add_modes=add)
+        other = [g for g in getattr(self.recipe, out_of) if abs(g - f) > 0.05 * f]
+        return self._change(**{into: sorted({*getattr(self.recipe, into), f}), out_of: other})
 
     def clear_mode_edits(self) -> bool:
         """Forget every added and dropped mode; refit."""
@@ -301,37 +299,25 @@ class Analysis:
         return True
 
     def _fit(self, recipe: Recipe, *, full: bool) -> tuple[xr.Dataset, xr.Dataset, bool]:
-        """The steps of :func:`modalnb.pipeline.run_recipe`, keeping the estimator object.
+        """:func:`modalnb.pipeline.run_recipe`, keeping the hit checks and the estimator.
 
-        A change of the window alone (same band, model order and hit decisions) uses the
-        estimator's fast refit from the poles already found (``ModeFit.refit``): a
-        *preview*, which :meth:`export` and :meth:`refit` replace by a full fit, so files
-        always equal a replay of the recipe.
+        A change of the window alone uses the estimator's fast refit from the poles already
+        found (``ModeFit.refit``): a *preview*, which :meth:`export` and :meth:`refit`
+        replace by a full fit, so files always equal a replay of the recipe. A preview
+        skips the cross-checks (:meth:`cross_checks` computes them on demand).
         """
-        from .checks import check_hits
-        from .estimate import ModeFit
-
-        hits_key = (tuple(sorted(recipe.hit_overrides.items())), repr(sorted(recipe.check_thresholds.items())))
-        if self.checks is not None and self._checks_key == hits_key:
-            checks = self.checks
-        else:
-            checks = check_hits(self.records, overrides=recipe.hit_overrides or None,
-                                **recipe.check_thresholds)
-        fit_records, accept = fit_inputs(self.records, recipe, checks)
-        key = (recipe.band, recipe.n_modes, tuple(sorted(accept.items())),
-               recipe.correct_exponential_window, tuple(recipe.add_modes), tuple(recipe.drop_modes))
+        hits_key = (recipe.hit_overrides, recipe.check_thresholds)
+        if self._checks_cache is None or self._checks_cache[0] != hits_key:
+            self._checks_cache = (hits_key, recipe_checks(self.records, recipe))
+        checks = self._checks_cache[1]
+        key = replace(recipe, window=None)  # everything but the window
         preview = (not full and recipe.window is not None and self._estimator is not None
                    and self._estimator_key == key)
         if preview:
-            result = self._estimator.refit(window=recipe.window)
+            result = finish_result(self._estimator.refit(window=recipe.window), recipe, checks)
         else:
-            est = ModeFit(**recipe.fit_kwargs(), accept=accept)
-            est.fit(fit_records)
-            result = est.result_
-            self._estimator, self._estimator_key = est, key
-        self._checks_key = hits_key
-        # a preview skips the cross-checks (:meth:`cross_checks` computes them on demand)
-        result = finish_result(result, recipe, checks, None if preview else self.records)
+            result, self._estimator = fit_recipe(self.records, recipe, checks)
+            self._estimator_key = key
         return result, checks, preview
 
     # --- files ---------------------------------------------------------------------
@@ -425,25 +411,24 @@ class Analysis:
         """Measured and modelled responses of one hit in the fit window.
 
         The model uses the result's poles; its amplitudes are solved by linear least
-        squares on this hit's data (:func:`refit_model`).
+        squares on this hit's data (:func:`modalnb.estimate.model_traces`).
 
         Returns
         -------
         t : ndarray (N,)
         measured, model : ndarray (n_channel, N)
         """
+        from .estimate import model_traces
+
         if self.result is None:
             raise ModalnbError("no result yet: the fit has not succeeded.")
         key = (id(self.result), int(hit))
-        if self._model_cache is not None and self._model_cache[0] == key:
-            return self._model_cache[1]
-        t0, t1 = self.fit_window()
-        t = self.records["time"].values
-        sel = (t >= t0) & (t <= t1)
-        y = self.records["response"].sel(hit=int(hit)).values[:, sel]
-        m, _ = refit_model(t[sel], y, _poles(self.result))
-        self._model_cache = (key, (t[sel], y, m))
-        return t[sel], y, m
+        if self._model_cache is None or self._model_cache[0] != key:
+            one = self.records.sel(hit=[int(hit)])
+            m = model_traces(one, self.result).isel(hit=0)
+            y = one["response"].isel(hit=0).sel(time=m["time"]).values
+            self._model_cache = (key, (m["time"].values, y, m.values))
+        return self._model_cache[1]
 
     def channel_quality(self, hit: int) -> list[dict[str, Any]]:
         """Per-channel fit quality of one hit: residual RMS, R^2 and residual/noise ratio."""
@@ -489,14 +474,13 @@ class Analysis:
         if self._xcheck_cache is None or self._xcheck_cache[0] is not self.result:
             from .estimate import with_cross_checks
 
-            self._xcheck_cache = (self.result, with_cross_checks(self.records, self.result))
+            fit_records, _ = fit_inputs(self.records, self.recipe, self.checks)
+            self._xcheck_cache = (self.result, with_cross_checks(fit_records, self.result))
         return self._xcheck_cache[1]
 
     def mac_modes(self) -> np.ndarray:
         """MAC matrix between the result's modes (Allemang & Brown 1982)."""
-        s = self.shapes()
-        n = s.shape[0]
-        return np.array([[mac(s[i], s[j]) for j in range(n)] for i in range(n)])
+        return mac_matrix(self.shapes().T)
 
     def mac_hits(self, mode: int) -> tuple[list[int], np.ndarray]:
         """MAC matrix between accepted hits of one mode, from the per-hit residues."""
@@ -504,6 +488,4 @@ class Analysis:
         hits = [h for h in self.accepted_hits() if h in self.result["hit"].values]
         re = self.result["hit_residue_real"].sel(mode=mode, hit=hits).values
         im = self.result["hit_residue_imag"].sel(mode=mode, hit=hits).values
-        r = re + 1j * im
-        n = len(hits)
-        return hits, np.array([[mac(r[i], r[j]) for j in range(n)] for i in range(n)])
+        return hits, mac_matrix((re + 1j * im).T)

@@ -26,10 +26,12 @@ import pytest
 import modalnb.estimate as estimate_pkg
 from modalnb._errors import ModalnbError
 from modalnb.demo import load_demo, load_demo_truth
+from modalnb.estimate import mac
+from modalnb.estimate._model import refit_model
 from modalnb.io import save_records
 from modalnb.pipeline import run_recipe
 from modalnb.recipe import Recipe, load_recipe
-from modalnb.session import Analysis, default_recipe_path, mac, refit_model
+from modalnb.session import Analysis, default_recipe_path
 
 
 @pytest.fixture(scope="module")

@@ -13,6 +13,7 @@ import xarray as xr
 
 from .._errors import EstimationError
 from .._pulse import contact_end, pulse_bounds
+from .._utils import frequency_list
 from ..records import get_sample_rate, has_force, validate_records
 from ._basis import is_near_critical, pole_of, residues_from_coefficients
 from ._core import ASKED_TOL, CoreResult, compress, fit_core, significance_threshold
@@ -183,25 +184,14 @@ def _stabilisation(core: CoreResult) -> xr.Dataset:
             "damping_ratio": ("pole", arr[:, 4]),
             "stable": ("pole", arr[:, 5].astype(bool)),
             "significance": ("pole", arr[:, 6], {"long_name": "pole energy over the residual "
-                                                 "variance of its order's fit"}),
+                                                 "variance of its order's fit (NaN in an order "
+                                                 "without a stable pole)"}),
         },
         attrs={"description": "poles versus pencil order; pass 0 is the wide-band pass, "
                "passes 1.. the sub-bands; stable = a pole of the previous order within 1 % in "
                "natural frequency and 5 % in damping ratio (common practice), and energy "
                "above the candidate significance limit"},
     )
-
-
-def _freq_list(name: str, value: Any) -> np.ndarray:
-    if value is None:
-        return np.zeros(0)
-    try:
-        out = np.sort(np.asarray([float(v) for v in np.atleast_1d(value)], float))
-    except (TypeError, ValueError):
-        raise EstimationError(f"`{name}` must be frequencies in Hz, got {value!r}.") from None
-    if not np.all(np.isfinite(out) & (out > 0)):
-        raise EstimationError(f"`{name}` frequencies must be positive and finite, got {value!r}.")
-    return out
 
 
 @contextmanager
@@ -332,7 +322,8 @@ class ModeFit:
         f_search = 0.45 * fs
         n_live = int(prep.live.sum())
         reweight = prep.noise_from != "pre-trigger samples" and n_live > 1
-        asked = _freq_list("add_modes", self.add_modes)
+        self._asked = asked = np.asarray(frequency_list("`add_modes`", self.add_modes, EstimationError))
+        self._dropped = frequency_list("`drop_modes`", self.drop_modes, EstimationError)
         seeds = asked if x0 is None and asked.size else None
         core = fit_core(y, t_rel, fs, f_max=f_search, x0=x0, max_order=self.max_order,
                         polish=not reweight, seeds_hz=seeds, protect_hz=asked)
@@ -408,7 +399,7 @@ class ModeFit:
                 f"no mode found in the band {band[0]:g}..{band[1]:g} Hz (modes fitted at "
                 f"{', '.join(f'{f:.4g}' for f in core.fn)} Hz). Hint: widen the band."
             )
-        for f in _freq_list("drop_modes", self.drop_modes):
+        for f in self._dropped:
             # the user leaves the fitted mode nearest f out of the table (it stays in the model)
             near = min(sel, key=lambda k: abs(core.fn[k] - f)) if sel else None
             if near is None or abs(core.fn[near] - f) > max(0.05 * f, 1.0):
@@ -425,7 +416,7 @@ class ModeFit:
         if self.n_modes is not None:
             sel = sorted(sel, key=lambda k: -energy[k])[: int(self.n_modes)]
         sel = sorted(sel, key=lambda k: core.fn[k])
-        asked = _freq_list("add_modes", self.add_modes)
+        asked = self._asked
         m = len(sel)
         scat_f, scat_z = self._per_hit_scatter(prep, core, weight)
         use_force = has_force(records)
@@ -559,11 +550,10 @@ class ModeFit:
             "window": [float(prep.t_win[0]), float(prep.t_win[-1])],
             "window_requested": None if window is None else [float(v) for v in window],
             "n_modes": None if self.n_modes is None else int(self.n_modes),
-            "add_modes": _freq_list("add_modes", self.add_modes).tolist(),
+            "add_modes": asked.tolist(),
             "add_modes_not_found": [
-                float(f) for f in _freq_list("add_modes", self.add_modes)
-                if not np.any(np.abs(cols["frequency_hz"] - f) < ASKED_TOL * f)],
-            "drop_modes": _freq_list("drop_modes", self.drop_modes).tolist(),
+                float(f) for f in asked if not np.any(np.abs(cols["frequency_hz"] - f) < ASKED_TOL * f)],
+            "drop_modes": list(self._dropped),
             "max_order": self.max_order,
             "modes_fitted": int(m_all),
             "hits_used": [int(h) for h in prep.hits[prep.acc_idx]],

@@ -42,7 +42,8 @@ class PencilOutput:
 
     candidates: list[Candidate] = field(default_factory=list)
     # rows of (pass id, order, frequency_hz (damped), natural_hz, damping_ratio, stable,
-    # significance = pole energy over the residual variance of that order's fit)
+    # significance = pole energy over the residual variance of that order's fit; NaN in an
+    # order without a stable pole, where it is not needed)
     rows: list[tuple[int, int, float, float, float, bool, float]] = field(default_factory=list)
 
 
@@ -131,11 +132,11 @@ def _sweep(
                 j = int(np.argmin(np.abs(pfn - fn[i])))
                 stable[i] = (abs(pfn[j] - fn[i]) <= 0.01 * fn[i]
                              and abs(pz[j] - zeta[i]) <= 0.05 * max(zeta[i], 1e-4))
-        if lam.size:
+        # pole energies only where the chart needs them (an order with a stable pole)
+        signif = np.full(lam.size, np.nan)
+        if stable.any():
             e_m, v_m = _energies(sig, np.exp((lam - 1j * TWO_PI * shift_hz) * dt))
             signif = e_m / max(v_m, 1e-300)
-        else:
-            signif = np.zeros(0)
         for lk, f, zz, st, sg in zip(lam, fn, zeta, stable, signif, strict=True):
             out.rows.append((pass_id, m, float(lk.imag / TWO_PI), float(f), float(zz), bool(st),
                              float(sg)))

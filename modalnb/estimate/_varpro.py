@@ -63,38 +63,46 @@ class Problem:
             cols.append((self.residual(xp) - self.residual(xm)) / (2 * h))
         return np.stack(cols, axis=1)
 
+    def _projection(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """``(Q, Q^T d, coefficients, D)`` at `x`: the pieces of Kaufman's Jacobian.
+
+        ``D`` (N, 4M) holds, per mode, the derivatives of its two basis columns with respect
+        to sigma, then to u, in packed units.
+        """
+        sigma, u = self.unpack(np.asarray(x, float))
+        t = self.t
+        with np.errstate(over="ignore", invalid="ignore", under="ignore"):
+            phi = basis_matrix(t, sigma, u, self.n_extra)
+            q, rr = np.linalg.qr(phi)
+            qtd = q.T @ self.data_t
+            if np.all(np.abs(np.diag(rr)) > 0):
+                coef = np.linalg.solve(rr, qtd)
+            else:
+                coef = np.linalg.lstsq(phi, self.data_t, rcond=None)[0]
+            dmat = np.empty((t.size, 4 * sigma.size))
+            for k in range(sigma.size):
+                c0, c1 = phi[:, 2 * k], phi[:, 2 * k + 1]
+                # d/dsigma of exp(-sigma t) f(t) is -t exp(-sigma t) f(t)
+                dmat[:, 4 * k] = -(t * c0) * self.w_scale
+                dmat[:, 4 * k + 1] = -(t * c1) * self.w_scale
+                d0, d1 = mode_columns_du(t, sigma[k], u[k], c0, c1)
+                dmat[:, 4 * k + 2] = d0 * self.w_scale**2
+                dmat[:, 4 * k + 3] = d1 * self.w_scale**2
+        return q, qtd, coef, np.nan_to_num(dmat, nan=0.0, posinf=0.0, neginf=0.0)
+
     def kaufman_jacobian(self, x: np.ndarray) -> np.ndarray:
         """Jacobian of the projected residual in Kaufman's (1975) form (N*P, n_params).
 
         ``J_j = -(I - Q Q^T) (dPhi/dx_j) c`` with ``c`` the least-squares coefficients; the
         second (residual-sized) term of Golub & Pereyra is dropped, as Kaufman proposed.
         """
-        x = np.asarray(x, float)
-        sigma, u = self.unpack(x)
-        phi = basis_matrix(self.t, sigma, u, self.n_extra)
-        q, rr = np.linalg.qr(phi)
-        qtd = q.T @ self.data_t
-        coef = np.linalg.solve(rr, qtd) if np.all(np.abs(np.diag(rr)) > 0) else np.linalg.lstsq(
-            phi, self.data_t, rcond=None)[0]
-        n, p = self.data_t.shape
-        jac = np.empty((n * p, x.size), order="F")
-        t = self.t
-        with np.errstate(over="ignore", invalid="ignore", under="ignore"):
-            return self._kaufman_fill(jac, phi, q, coef, sigma, u, t)
-
-    def _kaufman_fill(self, jac, phi, q, coef, sigma, u, t):
-        for k in range(sigma.size):
-            c0, c1 = phi[:, 2 * k], phi[:, 2 * k + 1]
-            a, b = coef[2 * k], coef[2 * k + 1]
-            # d/dsigma of exp(-sigma t) f(t) is -t exp(-sigma t) f(t); packed: * w_scale
-            ds = -(t * c0)[:, None] * a[None, :] - (t * c1)[:, None] * b[None, :]
-            ds *= self.w_scale
-            d0, d1 = mode_columns_du(t, sigma[k], u[k], c0, c1)
-            du = d0[:, None] * a[None, :] + d1[:, None] * b[None, :]
-            du *= self.w_scale**2
-            for j, g in ((2 * k, ds), (2 * k + 1, du)):
-                with np.errstate(over="ignore", invalid="ignore"):
-                    g = g - q @ (q.T @ g)
+        q, _, coef, dmat = self._projection(x)
+        jac = np.empty((self.data_t.size, 2 * (dmat.shape[1] // 4)), order="F")
+        with np.errstate(over="ignore", invalid="ignore"):
+            for j in range(jac.shape[1]):
+                k = j // 2
+                g = dmat[:, 2 * j : 2 * j + 2] @ coef[2 * k : 2 * k + 2]  # (N, P)
+                g = g - q @ (q.T @ g)
                 jac[:, j] = np.nan_to_num(-g.ravel(), nan=0.0, posinf=0.0, neginf=0.0)
         return jac
 
@@ -107,39 +115,19 @@ class Problem:
         ``J_j . r = -sum((D_j^T R) * C_j)`` since the residual ``R`` is already projected.
         The cost no longer grows with the number of signals P beyond one ``D^T R``.
         """
-        x = np.asarray(x, float)
-        sigma, u = self.unpack(x)
-        m = sigma.size
-        t = self.t
-        with np.errstate(over="ignore", invalid="ignore", under="ignore"):
-            phi = basis_matrix(t, sigma, u, self.n_extra)
-            q, rr = np.linalg.qr(phi)
-            qtd = q.T @ self.data_t
-            if np.all(np.abs(np.diag(rr)) > 0):
-                coef = np.linalg.solve(rr, qtd)
-            else:
-                coef = np.linalg.lstsq(phi, self.data_t, rcond=None)[0]
-            dmat = np.empty((t.size, 4 * m))
-            for k in range(m):
-                c0, c1 = phi[:, 2 * k], phi[:, 2 * k + 1]
-                dmat[:, 4 * k] = -(t * c0) * self.w_scale
-                dmat[:, 4 * k + 1] = -(t * c1) * self.w_scale
-                d0, d1 = mode_columns_du(t, sigma[k], u[k], c0, c1)
-                dmat[:, 4 * k + 2] = d0 * self.w_scale**2
-                dmat[:, 4 * k + 3] = d1 * self.w_scale**2
-            dmat = np.nan_to_num(dmat, nan=0.0, posinf=0.0, neginf=0.0)
-            e = dmat - q @ (q.T @ dmat)
-            resid = (self.data_t - q @ qtd) if r is None else r.reshape(self.data_t.shape)
+        q, qtd, coef, dmat = self._projection(x)
+        m = dmat.shape[1] // 4
         n = 2 * m
         kk = np.arange(n) // 2  # mode of each parameter
         cm = coef[: 2 * m].reshape(m, 2, -1)  # (m, 2, P)
-        cc = np.einsum("kap,lbp->kalb", cm, cm)  # C_k C_l^T
-        ccx = cc[kk][:, :, kk]  # (n, 2, n, 2)
         with np.errstate(over="ignore", invalid="ignore"):
             # a trial point far out (a nearly growing mode) may overflow: such a point
             # gets a huge but finite normal matrix, so the step is simply refused
+            e = dmat - q @ (q.T @ dmat)
+            resid = (self.data_t - q @ qtd) if r is None else r.reshape(self.data_t.shape)
+            cc = np.einsum("kap,lbp->kalb", cm, cm)  # C_k C_l^T
             ete = (e.T @ e).reshape(n, 2, n, 2)
-            jtj = np.einsum("iajb,iajb->ij", ete, ccx)
+            jtj = np.einsum("iajb,iajb->ij", ete, cc[kk][:, :, kk])
             dtr = (dmat.T @ resid).reshape(n, 2, -1)
             g = -np.einsum("iap,iap->i", dtr, cm[kk])
         big = np.finfo(float).max / 1e6
