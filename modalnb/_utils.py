@@ -1,4 +1,4 @@
-"""Small shared helpers: did-you-mean hints, optional imports, argument checks."""
+"""Small shared helpers: did-you-mean hints, argument checks, the band rule."""
 
 from __future__ import annotations
 
@@ -92,3 +92,61 @@ def frequency_list(name: str, value: object, error: type[ModalnbError] = Modalnb
     if any(not 0 < f < float("inf") for f in out):
         raise error(f"{name} frequencies must be positive and finite, was {value!r}.")
     return out
+
+
+#: Highest analysed frequency as a fraction of the sample rate. Anti-alias filters of
+#: acquisition systems roll off between about 0.40 fs and 0.5 fs, so above 0.45 fs a
+#: record's content is filter response, not structure (common practice).
+BAND_LIMIT_FRACTION = 0.45
+
+
+def default_band(sample_rate: float) -> tuple[float, float]:
+    """The band used when none is chosen: 0 Hz to ``BAND_LIMIT_FRACTION * sample_rate``.
+
+    Examples
+    --------
+    >>> default_band(1000.0)
+    (0.0, 450.0)
+    """
+    return 0.0, BAND_LIMIT_FRACTION * float(sample_rate)
+
+
+def check_band(
+    band: object,
+    sample_rate: float | None = None,
+    *,
+    error: type[ModalnbError] = ModalnbError,
+    source: str | None = None,
+) -> tuple[float, float] | None:
+    """Validate a frequency band ``(low, high)`` in Hz; None passes through.
+
+    The one band rule of modalnb: two finite numbers with ``0 <= low < high``, and, when
+    `sample_rate` is given, ``high`` at most the Nyquist frequency. Raises `error` with a
+    one-line message (prefixed with `source`, a file or recipe name, when given).
+
+    Examples
+    --------
+    >>> check_band([10, 500], 2048.0)
+    (10.0, 500.0)
+    >>> check_band(None) is None
+    True
+    """
+    if band is None:
+        return None
+    where = f"{source}: " if source else ""
+    try:
+        lo, hi = (float(b) for b in band)  # type: ignore[union-attr]
+    except (TypeError, ValueError):
+        raise error(
+            f"{where}`band` must be a pair (low, high) of frequencies in Hz, was {band!r}."
+        ) from None
+    if not (0.0 <= lo < hi < float("inf")):
+        raise error(f"{where}`band` must satisfy 0 <= low < high (finite), was {band!r}.")
+    if sample_rate is not None:
+        nyquist = 0.5 * float(sample_rate)
+        if hi > nyquist * (1 + 1e-9):
+            raise error(
+                f"{where}band upper edge {hi:g} Hz is above the Nyquist frequency {nyquist:g} Hz "
+                "of the records. Hint: lower the band's upper edge."
+            )
+    return lo, hi

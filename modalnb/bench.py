@@ -55,7 +55,6 @@ import json
 import math
 import os
 import platform
-import tempfile
 import time
 from collections.abc import Callable
 from pathlib import Path
@@ -63,6 +62,7 @@ from typing import Any
 
 import numpy as np
 
+from ._files import atomic_write_text
 from .crlb import crlb_modes
 from .synth import add_noise, free_decay
 
@@ -697,13 +697,5 @@ def write_bench_json(results: dict[str, Any], path: str | os.PathLike[str]) -> P
     """
     p = Path(path)
     text = json.dumps(_jsonable(results), indent=2, allow_nan=False)
-    fd, tmp = tempfile.mkstemp(prefix=p.name + ".", suffix=".tmp", dir=p.parent or ".")
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text + "\n")
-        os.replace(tmp, p)
-    except OSError:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    atomic_write_text(p, text + "\n")
     return p

@@ -206,20 +206,6 @@ def _truth_comparison(result: Any, truth: dict) -> str:
     return "\n".join(lines)
 
 
-def _atomic_text(path: Path, text: str) -> None:
-    import os
-    import tempfile
-
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-
-
 def _cmd_bench(args: argparse.Namespace) -> int:
     from tqdm.std import tqdm
 

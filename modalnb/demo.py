@@ -70,7 +70,6 @@ from __future__ import annotations
 import argparse
 import json
 import os
-import tempfile
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -80,6 +79,7 @@ import numpy as np
 import xarray as xr
 
 from ._errors import ModalnbError
+from ._files import atomic_write_with
 from .records import records_from_arrays, validate_records
 
 __all__ = [
@@ -730,25 +730,8 @@ def _encoding(ds: xr.Dataset) -> dict[str, dict[str, Any]]:
     return enc
 
 
-def _atomic_write_bytes(path: Path, write: Any) -> None:
-    """Call ``write(tmp_path)`` on a temporary file next to `path`, then os.replace."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    os.close(fd)
-    try:
-        write(Path(tmp))
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)  # mkstemp makes 0600; give the usual file mode
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-
-
 def _write_campaign(ds: xr.Dataset, path: Path) -> None:
-    _atomic_write_bytes(
+    atomic_write_with(
         path,
         lambda p: ds.to_netcdf(p, engine="h5netcdf", encoding=_encoding(ds), invalid_netcdf=False),
     )
@@ -756,7 +739,7 @@ def _write_campaign(ds: xr.Dataset, path: Path) -> None:
 
 def _write_json(obj: dict[str, Any], path: Path) -> None:
     text = json.dumps(obj, indent=1) + "\n"
-    _atomic_write_bytes(path, lambda p: p.write_text(text, encoding="utf-8"))
+    atomic_write_with(path, lambda p: p.write_text(text, encoding="utf-8"))
 
 
 def _write_csv(ds: xr.Dataset, hit: int, path: Path) -> None:
@@ -773,7 +756,7 @@ def _write_csv(ds: xr.Dataset, hit: int, path: Path) -> None:
             for row in zip(*cols, strict=True):
                 w.writerow([f"{v:.10g}" for v in row])
 
-    _atomic_write_bytes(path, write)
+    atomic_write_with(path, write)
 
 
 def write_demo(
@@ -817,6 +800,7 @@ def write_demo(
     if package_data:
         targets.append(Path(__file__).resolve().parent / "data")
     for target in targets:
+        target.mkdir(parents=True, exist_ok=True)
         _write_campaign(ds, target / CAMPAIGN_FILE)
         _write_json(truth, target / TRUTH_FILE)
         written += [target / CAMPAIGN_FILE, target / TRUTH_FILE]

@@ -20,7 +20,6 @@ import io
 import json
 import math
 import os
-import tempfile
 from collections.abc import Iterable
 from pathlib import Path
 from typing import Any
@@ -28,6 +27,7 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
+from ._files import staged_files
 from .recipe import Recipe
 
 __all__ = [
@@ -213,24 +213,11 @@ def write_modal_table(
         recipe = Recipe.from_json(result.attrs["recipe"])
     if recipe is not None:
         texts["recipe.json"] = recipe.to_json()
-    staged: list[tuple[str, Path]] = []
-    try:
+    with staged_files(out) as stage:
         for name, text in texts.items():
-            fd, tmp = tempfile.mkstemp(dir=out, prefix=f".{name}.", suffix=".tmp")
-            with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
-                fh.write(text)
-            staged.append((name, Path(tmp)))
-        fd, tmp = tempfile.mkstemp(dir=out, prefix=".modes.nc.", suffix=".tmp")
-        os.close(fd)
-        staged.append(("modes.nc", Path(tmp)))
-        _netcdf_ready(result).to_netcdf(tmp, engine="h5netcdf")
-        for name, tmp_path in staged:
-            os.replace(tmp_path, out / name)
-    except BaseException:
-        for _, tmp_path in staged:
-            tmp_path.unlink(missing_ok=True)
-        raise
-    return {name: out / name for name, _ in staged}
+            stage(name).write_bytes(text.encode("utf-8"))
+        _netcdf_ready(result).to_netcdf(stage("modes.nc"), engine="h5netcdf")
+    return {name: out / name for name in [*texts, "modes.nc"]}
 
 
 def format_modal_table(result: xr.Dataset) -> str:

@@ -18,7 +18,6 @@ from __future__ import annotations
 import csv
 import io
 import os
-import secrets
 import struct
 import warnings
 import zipfile
@@ -31,6 +30,7 @@ import numpy as np
 import xarray as xr
 
 from ._errors import ModalnbError, RecordError, RecordFileNotFoundError
+from ._files import atomic_write_with
 from ._utils import did_you_mean
 from .records import DIMS, validate_records
 
@@ -879,17 +879,12 @@ def save_records(ds: xr.Dataset, path: str | os.PathLike[str]) -> Path:
         for name, var in out.data_vars.items()
         if var.dtype.kind in "iuf"
     }
-    tmp = folder / f".{target.name}.{secrets.token_hex(6)}.tmp"
     try:
-        out.to_netcdf(tmp, engine="h5netcdf", encoding=encoding)
-        os.replace(tmp, target)
+        atomic_write_with(target, lambda tmp: out.to_netcdf(tmp, engine="h5netcdf", encoding=encoding))
     except (OSError, TypeError, ValueError) as exc:
         raise RecordError(
             f"{src}: could not write the file ({type(exc).__name__}: {exc})."
         ) from None
-    finally:
-        if tmp.exists():
-            tmp.unlink()
     return target
 
 

@@ -11,12 +11,12 @@ from __future__ import annotations
 
 import json
 import os
-import tempfile
 from dataclasses import asdict, dataclass, field, fields
 from pathlib import Path
 from typing import Any
 
 from ._errors import ModalnbError
+from ._files import atomic_write_text
 from ._utils import frequency_list
 
 __all__ = ["Recipe", "RecipeError", "load_recipe", "save_recipe", "RECIPE_FORMAT", "RECIPE_VERSION"]
@@ -190,30 +190,6 @@ def _as_bool(value: Any, name: str) -> bool:
     if isinstance(value, bool):
         return value
     raise RecipeError(f"recipe `{name}` must be true or false, was {value!r}.")
-
-
-def atomic_write_text(path: str | os.PathLike[str], text: str) -> Path:
-    """Write `text` to `path` atomically (temporary file in the same folder, then rename).
-
-    Examples
-    --------
-    >>> import tempfile, pathlib
-    >>> p = pathlib.Path(tempfile.mkdtemp()) / "a.txt"
-    >>> atomic_write_text(p, "hi").read_text()
-    'hi'
-    """
-    path = Path(path)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-    return path
 
 
 def save_recipe(recipe: Recipe, path: str | os.PathLike[str]) -> Path:

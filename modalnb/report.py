@@ -17,8 +17,8 @@ import numpy as np
 import xarray as xr
 
 from ._errors import ModalnbError
+from ._files import atomic_write_text
 from .export import CAUTION, hits_rows, modes_rows
-from .recipe import atomic_write_text
 
 __all__ = ["write_report", "report_html", "decimate_for_display"]
 
@@ -36,7 +36,7 @@ def decimate_for_display(t: np.ndarray, y: np.ndarray, max_points: int = 2000) -
     --------
     >>> t = np.arange(10000.0); y = np.sin(t)
     >>> tt, yy = decimate_for_display(t, y, 200)
-    >>> len(tt) <= 200 and yy.max() == y.max()
+    >>> bool(len(tt) <= 200 and yy.max() == y.max())
     True
     """
     n = len(t)
