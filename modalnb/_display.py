@@ -93,7 +93,7 @@ def decimate_for_display(t: np.ndarray, y: np.ndarray,
     --------
     >>> t = np.arange(10000.0); y = np.sin(t)
     >>> tt, yy = decimate_for_display(t, y, 200)
-    >>> len(tt) <= 200, yy.max() == y.max(), yy.min() == y.min()
+    >>> len(tt) <= 200, bool(yy.max() == y.max()), bool(yy.min() == y.min())
     (True, True, True)
     """
     t, y = np.asarray(t), np.asarray(y)

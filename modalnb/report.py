@@ -128,6 +128,20 @@ def report_html(
         Default: rebuilt from the table's poles (:func:`modalnb.estimate.model_traces`).
     title : str
         Page title (escaped).
+
+    Returns
+    -------
+    str
+        A complete HTML page; it keeps the safety caution (estimates, not certification).
+
+    Examples
+    --------
+    >>> from modalnb import fit_modes, records_from_arrays
+    >>> t = np.arange(2048) / 1024.0
+    >>> ds = records_from_arrays(np.exp(-2 * t) * np.sin(2 * np.pi * 40 * t), 1024.0)
+    >>> page = report_html(ds, fit_modes(ds), title="bay <3>")
+    >>> page.startswith("<!DOCTYPE html>"), "<title>bay &lt;3&gt;</title>" in page
+    (True, True)
     """
     if model is None:
         from .estimate import model_traces
@@ -191,5 +205,16 @@ def write_report(
     path: str | os.PathLike[str],
     **kwargs: Any,
 ) -> Path:
-    """Write :func:`report_html` to `path` atomically and return the path."""
+    """Write :func:`report_html` to `path` atomically and return the path.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> from modalnb import fit_modes, records_from_arrays
+    >>> t = np.arange(2048) / 1024.0
+    >>> ds = records_from_arrays(np.exp(-2 * t) * np.sin(2 * np.pi * 40 * t), 1024.0)
+    >>> out = write_report(ds, fit_modes(ds), None, Path(tempfile.mkdtemp()) / "report.html")
+    >>> out.name, out.stat().st_size > 1_000_000  # plotly.js embedded: opens offline
+    ('report.html', True)
+    """
     return atomic_write_text(path, report_html(records, result, checks, **kwargs))
