@@ -25,10 +25,10 @@ import ipywidgets as w
 import numpy as np
 import plotly.graph_objects as go
 
-from .._display import MAX_POINTS, PALETTE
+from .._display import PALETTE
 from ..session import Analysis
 
-__all__ = ["Panel", "esc", "fmt", "figure", "fig_box", "table_html", "mode_rows", "MAX_POINTS"]
+__all__ = ["Panel", "esc", "fmt", "figure", "fig_box", "table_html", "mode_rows"]
 
 
 def esc(x: Any) -> str:

@@ -91,7 +91,7 @@ class ModesPanel(Panel):
         ])
 
     def _band(self) -> tuple[float, float]:
-        """The band in use: the recipe's, or the default one (0 to 0.45 fs)."""
+        """The band in use: the recipe's, or :func:`modalnb._utils.default_band`."""
         a = self.analysis
         return tuple(a.recipe.band) if a.recipe.band else default_band(a.sample_rate)
 
