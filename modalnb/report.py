@@ -16,44 +16,12 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
+from ._display import PALETTE, decimate_for_display
 from ._errors import ModalnbError
 from ._files import atomic_write_text
 from .export import CAUTION, hits_rows, modes_rows
 
-__all__ = ["write_report", "report_html", "decimate_for_display"]
-
-# our own palette: measured trace in slate, model in amber, residual in teal
-_MEASURED = "#4a5a6a"
-_MODEL = "#d98c00"
-_RESIDUAL = "#1b9e8a"
-_MODE_MARK = "#b3261e"
-
-
-def decimate_for_display(t: np.ndarray, y: np.ndarray, max_points: int = 2000) -> tuple[np.ndarray, np.ndarray]:
-    """Keep the min and max of each of ``max_points/2`` buckets (what a screen can show).
-
-    Examples
-    --------
-    >>> t = np.arange(10000.0); y = np.sin(t)
-    >>> tt, yy = decimate_for_display(t, y, 200)
-    >>> bool(len(tt) <= 200 and yy.max() == y.max())
-    True
-    """
-    n = len(t)
-    if n <= max_points:
-        return t, y
-    buckets = max(1, max_points // 2)
-    edges = np.linspace(0, n, buckets + 1).astype(int)
-    idx = []
-    for a, b in zip(edges[:-1], edges[1:], strict=True):
-        if b <= a:
-            continue
-        seg = y[a:b]
-        i, j = a + int(np.argmin(seg)), a + int(np.argmax(seg))
-        idx.extend(sorted({i, j}))
-    idx_arr = np.asarray(idx)
-    return t[idx_arr], y[idx_arr]
-
+__all__ = ["write_report", "report_html"]
 
 def _e(x: Any) -> str:
     return html.escape(str(x), quote=True)
@@ -90,17 +58,19 @@ def _figures(records: xr.Dataset, result: xr.Dataset, model: xr.DataArray | None
     acc = [i for i, h in enumerate(hits) if accepted.get(int(h), True)] or list(range(len(hits)))
     spec = np.abs(np.fft.rfft(records["response"].values[acc][:, :, use], axis=-1)).mean(axis=0).sum(axis=0)
     freqs = np.fft.rfftfreq(int(use.sum()), 1 / fs)
-    fig = go.Figure(go.Scatter(x=freqs, y=spec, mode="lines", line={"color": _MEASURED}, name="spectrum (sum of channels)"))
+    fx, fy = decimate_for_display(freqs, spec)
+    fig = go.Figure(go.Scatter(x=fx, y=fy, mode="lines", line={"color": PALETTE.measured},
+                               name="spectrum (sum of channels)"))
     for k, f in enumerate(result["frequency_hz"].values.tolist()):
         if np.isfinite(f):
-            fig.add_vline(x=f, line={"color": _MODE_MARK, "dash": "dot"}, annotation_text=f"mode {k + 1}")
+            fig.add_vline(x=f, line={"color": PALETTE.mode, "dash": "dot"}, annotation_text=f"mode {k + 1}")
     fig.update_layout(title="Response spectrum, accepted hits (dotted: fitted modes)", xaxis_title="frequency [Hz]",
                       yaxis_title=f"|X| [{_e(records['response'].attrs.get('units', ''))}·s]", yaxis_type="log",
                       height=380, margin={"t": 50})
     figs.append(fig)
     # 2. force pulses per hit
     if "force" in records:
-        fig = go.Figure()
+        fig = go.Figure(layout={"colorway": list(PALETTE.series)})
         win = (time >= -0.002) & (time <= 0.02)
         for i, h in enumerate(hits):
             fig.add_trace(go.Scatter(x=time[win] * 1e3, y=records["force"].values[i, win], mode="lines",
@@ -116,17 +86,17 @@ def _figures(records: xr.Dataset, result: xr.Dataset, model: xr.DataArray | None
     for c in range(n_ch):
         y = records["response"].values[i0, c]
         tt, yy = decimate_for_display(time, y)
-        fig.add_trace(go.Scatter(x=tt, y=yy, mode="lines", line={"color": _MEASURED, "width": 1},
+        fig.add_trace(go.Scatter(x=tt, y=yy, mode="lines", line={"color": PALETTE.measured, "width": 1},
                                  name="measured", legendgroup="m", showlegend=c == 0), row=c + 1, col=1)
         if model is not None:
             m = model.isel(hit=i0, channel=c)
             mt = m["time"].values
             tt, yy = decimate_for_display(mt, m.values)
-            fig.add_trace(go.Scatter(x=tt, y=yy, mode="lines", line={"color": _MODEL, "width": 1},
+            fig.add_trace(go.Scatter(x=tt, y=yy, mode="lines", line={"color": PALETTE.model, "width": 1},
                                      name="fitted model", legendgroup="f", showlegend=c == 0), row=c + 1, col=1)
             sel = np.isin(time, mt)
             tt, yy = decimate_for_display(mt, y[sel] - m.values)
-            fig.add_trace(go.Scatter(x=tt, y=yy, mode="lines", line={"color": _RESIDUAL, "width": 1},
+            fig.add_trace(go.Scatter(x=tt, y=yy, mode="lines", line={"color": PALETTE.residual, "width": 1},
                                      name="residual", legendgroup="r", showlegend=c == 0), row=c + 1, col=1)
     fig.update_layout(title=f"Hit {int(hits[i0])}: measured, fitted model and residual", height=max(400, 170 * n_ch),
                       margin={"t": 60})
@@ -158,6 +128,20 @@ def report_html(
         Default: rebuilt from the table's poles (:func:`modalnb.estimate.model_traces`).
     title : str
         Page title (escaped).
+
+    Returns
+    -------
+    str
+        A complete HTML page; it keeps the safety caution (estimates, not certification).
+
+    Examples
+    --------
+    >>> from modalnb import fit_modes, records_from_arrays
+    >>> t = np.arange(2048) / 1024.0
+    >>> ds = records_from_arrays(np.exp(-2 * t) * np.sin(2 * np.pi * 40 * t), 1024.0)
+    >>> page = report_html(ds, fit_modes(ds), title="bay <3>")
+    >>> page.startswith("<!DOCTYPE html>"), "<title>bay &lt;3&gt;</title>" in page
+    (True, True)
     """
     if model is None:
         from .estimate import model_traces
@@ -183,11 +167,12 @@ def report_html(
                            "phase_deg": float(result["shape_phase_deg"].values[k, c])})
     h_rows = hits_rows(result, checks)
     attrs = {k: v for k, v in result.attrs.items() if k != "recipe"}
-    css = """
-body{font-family:system-ui,sans-serif;margin:1.5em auto;max-width:1100px;color:#1d2730}
-table{border-collapse:collapse;margin:.6em 0 1.4em}td,th{border:1px solid #c9d1d8;padding:.25em .6em;text-align:left}
-th{background:#eef2f5}.caution{border-left:5px solid #b3261e;background:#fbf1f0;padding:.6em 1em}
-code{background:#eef2f5;padding:0 .2em}
+    pal = PALETTE
+    css = f"""
+body{{font-family:system-ui,sans-serif;margin:1.5em auto;max-width:1100px;color:{pal.text}}}
+table{{border-collapse:collapse;margin:.6em 0 1.4em}}td,th{{border:1px solid {pal.grid};padding:.25em .6em;text-align:left}}
+th{{background:{pal.header}}}.caution{{border-left:5px solid {pal.error};background:{pal.caution};padding:.6em 1em}}
+code{{background:{pal.header};padding:0 .2em}}
 """
     body = [
         f"<h1>{_e(title)}</h1>",
@@ -220,5 +205,16 @@ def write_report(
     path: str | os.PathLike[str],
     **kwargs: Any,
 ) -> Path:
-    """Write :func:`report_html` to `path` atomically and return the path."""
+    """Write :func:`report_html` to `path` atomically and return the path.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> from modalnb import fit_modes, records_from_arrays
+    >>> t = np.arange(2048) / 1024.0
+    >>> ds = records_from_arrays(np.exp(-2 * t) * np.sin(2 * np.pi * 40 * t), 1024.0)
+    >>> out = write_report(ds, fit_modes(ds), None, Path(tempfile.mkdtemp()) / "report.html")
+    >>> out.name, out.stat().st_size > 1_000_000  # plotly.js embedded: opens offline
+    ('report.html', True)
+    """
     return atomic_write_text(path, report_html(records, result, checks, **kwargs))

@@ -1,4 +1,9 @@
-"""The HTML report opens offline in headless Chromium (issue 4 §3; ../shared/BROWSER.md)."""
+"""The HTML report: every text escaped, plotly.js embedded exactly once, and the page opens
+offline in headless Chromium (driven by Playwright).
+
+Playwright is a test dependency (imported directly: missing, this module fails). Without
+``chromium`` on PATH the Chromium check is skipped, unless ``MODALNB_REQUIRE_BROWSER=1``.
+"""
 
 from __future__ import annotations
 
@@ -9,8 +14,11 @@ import tempfile
 import numpy as np
 import pytest
 import xarray as xr
+from playwright import sync_api
+from plotly.offline import get_plotlyjs
 
 from modalnb import records_from_arrays
+from modalnb._display import PALETTE
 from modalnb.report import report_html
 from modalnb.synth import free_decay
 
@@ -20,12 +28,11 @@ ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
         "--disable-dev-shm-usage"]
 
 
-def _browser_or_skip():
+def _chromium_or_skip() -> None:
     if CHROMIUM is None:
         if os.environ.get("MODALNB_REQUIRE_BROWSER") == "1":
             pytest.fail("MODALNB_REQUIRE_BROWSER=1 but no `chromium` on PATH (apt-get install chromium)")
         pytest.skip("no `chromium` on PATH (Debian package chromium); browser checks skipped")
-    return pytest.importorskip("playwright.sync_api")
 
 
 EVIL = "<script>alert(1)</script>"
@@ -58,11 +65,15 @@ def test_report_escapes_text():
     assert EVIL not in page  # never raw in the page
     assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page
     assert "not a certification" in page
-    assert page.count("plotly.js v") <= 2  # the library is embedded once
+    # the library is embedded exactly once: plotly's own bundle text, found one time
+    assert page.count(get_plotlyjs()) == 1
+    assert page.count("plotly.js v") == 1  # its banner comment: no second, other copy
+    assert PALETTE.measured in page and PALETTE.model in page  # the shared palette
 
 
+@pytest.mark.browser
 def test_report_renders_offline_in_chromium():
-    sync_api = _browser_or_skip()
+    _chromium_or_skip()
     ds, result, model = _case()
     tmp = tempfile.mkdtemp()
     path = os.path.join(tmp, "report.html")

@@ -4,27 +4,34 @@ call, then assert on the analysis state, the recipe on disk and the tables shown
 Sources of the expected values: the recipe file read back by modalnb.recipe.load_recipe;
 the demo truth (demo_truth.json: hit 4 double hit, hit 6 clipped); the MAC definition
 (Allemang & Brown 1982: 1 on the diagonal); the stdlib csv reader for exported files.
-The real engine (``modalnb.estimate.ModeFit``) drives the state.
+The real engine (``modalnb.estimate.ModeFit``) drives the state. ipywidgets, plotly and
+anywidget are hard dependencies: imported directly, so a missing one fails this module.
 """
 
 from __future__ import annotations
 
 import csv
+import html
 import re
+import subprocess
+import sys
+from html.parser import HTMLParser
+from pathlib import Path
 from types import SimpleNamespace
 
+import anywidget
+import ipywidgets as w
 import numpy as np
+import plotly.graph_objects as go
 import pytest
 
+from modalnb._display import MAX_POINTS, PALETTE, decimate_for_display
 from modalnb.demo import load_demo, load_demo_truth
-from modalnb.recipe import load_recipe
+from modalnb.recipe import Recipe, load_recipe
 from modalnb.session import Analysis
+from modalnb.widgets import Desk, HitPanel, WindowPanel, analysis_desk
 
-pytest.importorskip("ipywidgets")
-pytest.importorskip("plotly")
-
-from modalnb.widgets import HitPanel, WindowPanel, analysis_desk  # noqa: E402
-from modalnb.widgets._base import MAX_POINTS  # noqa: E402
+ROOT = Path(__file__).resolve().parents[1]
 
 
 @pytest.fixture(scope="module")
@@ -132,7 +139,10 @@ def test_band_and_mode_count(desk):
     p.n_modes.value = 0
     p.auto_band.click()
     assert desk.analysis.recipe.band is None and desk.analysis.recipe.n_modes is None
-    assert a.fig.layout.shapes[0].x1 == pytest.approx(0.45 * desk.analysis.sample_rate)
+    # back to the documented default band: 0 to 0.45 fs (common practice, see modalnb._utils)
+    fs = desk.analysis.sample_rate
+    assert a.fig.layout.shapes[0].x0 == 0.0 and a.fig.layout.shapes[0].x1 == pytest.approx(0.45 * fs)
+    assert p.band.value == pytest.approx((0.0, 0.45 * fs), abs=0.5)  # slider step is 1 Hz
 
 
 def test_click_and_buttons_drop_and_restore_a_mode(desk):
@@ -153,7 +163,7 @@ def test_click_and_buttons_drop_and_restore_a_mode(desk):
 
 def test_fit_panel_shows_model_and_quality(desk):
     p = desk.fit
-    # the cross-checks beside the fit: one row per mode, three methods (issue 5 §1.4)
+    # the cross-checks beside the fit: one row per mode, three methods
     assert "cross-checks" in p.cross.value and "Hilbert envelope" in p.cross.value
     assert "biased low in noise" in p.cross.value  # each method with its known bias
     assert p.cross.value.count("<tr") == desk.analysis.result.sizes["mode"] + 1
@@ -228,26 +238,157 @@ def test_status_shows_progress_during_refit(desk):
 
 
 def test_decimation_keeps_every_peak():
-    from modalnb.report import decimate_for_display
-    from modalnb.widgets._base import decimate
-
     rng = np.random.default_rng(3)
     t = np.arange(10007) / 4096.0
     y = rng.normal(size=t.size)
-    tt, yy = decimate(t, y, 400)
-    assert len(tt) <= 400 and np.all(np.diff(tt) > 0)
+    n = 400
+    tt, yy = decimate_for_display(t, y, n)
+    assert len(tt) <= n and np.all(np.diff(tt) > 0)
     assert yy.max() == y.max() and yy.min() == y.min()  # extremes survive (the point of min/max)
-    # same envelope as the report's loop version (an independent implementation in the repo)
-    tr, yr = decimate_for_display(t, y, 400)
-    assert abs(len(tr) - len(tt)) <= 0.05 * len(tr)  # about as many points (bucket edges differ)
+    idx = np.searchsorted(t, tt)
+    np.testing.assert_array_equal(t[idx], tt)  # only samples of the input, never invented points
+    np.testing.assert_array_equal(y[idx], yy)
+    # envelope property, checked sample by sample with a plain loop: every input sample lies
+    # within the min..max of the kept points near it (a bucket is ceil(N / (n/2)) samples)
+    k = -(-t.size // (n // 2))
+    for i in range(0, t.size, 7):
+        near = yy[np.abs(idx - i) <= 2 * k]
+        assert near.min() <= y[i] <= near.max(), i
+    short = np.arange(50.0)
+    assert decimate_for_display(short, short)[0] is short  # already small enough: untouched
+
+
+def test_widgets_and_report_share_one_palette_and_one_decimation():
+    # one palette: no colour literal anywhere in the report or the widgets, only in _display
+    hex_colour = re.compile(r"#[0-9a-fA-F]{6}\b|rgba?\(")
+    for path in [ROOT / "modalnb" / "report.py", *sorted((ROOT / "modalnb" / "widgets").glob("*.py"))]:
+        found = hex_colour.findall(path.read_text())
+        assert found == [], f"{path.name} defines its own colours: {found}"
+    assert "def decimate" not in (ROOT / "modalnb" / "report.py").read_text()
+    for path in (ROOT / "modalnb" / "widgets").glob("*.py"):
+        assert "def decimate" not in path.read_text(), path.name
+        assert "0.45" not in path.read_text(), path.name  # the default band comes from _utils
+
+
+def test_figures_use_the_palette(desk):
+    fit = desk.fit
+    assert [tr.line.color for tr in fit.fig.data] == [
+        PALETTE.measured, PALETTE.model, PALETTE.residual, PALETTE.measured, PALETTE.residual]
+    assert desk.modes.fig.data[1].marker.color == PALETTE.mode
+    assert desk.window.fig.layout.shapes[0].fillcolor == PALETTE.window
+
+
+def test_figurewidget_needs_anywidget_and_says_so():
+    # plotly's FigureWidget is an anywidget.AnyWidget: the dependency is real
+    assert issubclass(go.FigureWidget, anywidget.AnyWidget)
+    assert isinstance(go.FigureWidget(), w.DOMWidget)
+    # without anywidget, importing the widgets fails at once with a message naming it
+    code = ("import sys; sys.modules['anywidget'] = None\n"
+            "try:\n    import modalnb.widgets\nexcept ImportError as e:\n    print('IMPORTERROR', e)\n")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120,
+                         check=True).stdout
+    assert out.startswith("IMPORTERROR") and "pip install anywidget" in out, out
 
 
 def test_desk_builds_a_panel_when_its_tab_opens(desk):
-    from modalnb.widgets import Desk
-
     d = Desk(desk.analysis)
     assert list(d._built) == ["hits"]  # only the first tab at start
     d.tabs.selected_index = 3
     assert "fit" in d._built and d._boxes[3].children == (d.fit.widget,)
     assert d.tabs.get_title(4).endswith("Modal table")
     d.close()
+
+
+SCRIPT = "<script>alert(1)</script>"
+QUOTES = "&<>\"'"
+
+
+class _Page(HTMLParser):
+    """What a browser makes of an HTML fragment: its tags and its text (stdlib parser)."""
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.tags: list[str] = []
+        self.text: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        self.tags.append(tag)
+
+    def handle_data(self, data):
+        self.text.append(data)
+
+
+def _page(fragment: str) -> _Page:
+    p = _Page()
+    p.feed(fragment)
+    p.close()
+    return p
+
+
+def _html_values(widget) -> list[str]:
+    out, todo = [], [widget]
+    while todo:
+        x = todo.pop()
+        if isinstance(x, w.HTML):
+            out.append(x.value)
+        todo.extend(getattr(x, "children", ()))
+    return out
+
+
+@pytest.fixture(scope="module")
+def hostile(tmp_path_factory):
+    """The demo with two channels renamed to markup, each dead in one hit; a dead channel
+    is set to reject its hit, so the hit's reason names the channel (modalnb.check_hits)."""
+    ds = load_demo().copy(deep=True)
+    names = [str(c) for c in ds["channel"].values]
+    names[0], names[1] = SCRIPT, QUOTES
+    ds = ds.assign_coords(channel=names)
+    ds["response"][0, 0, :] = 0.0  # hit 1: channel SCRIPT dead (all samples equal)
+    ds["response"][1, 1, :] = 0.0  # hit 2: channel QUOTES dead
+    recipe = Recipe(check_thresholds={"reject": ["double hit", "clipping", "dead channel"]})
+    a = Analysis(ds, recipe, recipe_path=tmp_path_factory.mktemp("hostile") / "x.recipe.json",
+                 source=f"bay {SCRIPT}.nc")
+    d = Desk(a)
+    yield d
+    d.close()
+
+
+def test_hostile_names_and_reasons_are_shown_as_text(hostile):
+    a = hostile.analysis
+    reasons = [str(r) for r in a.checks["reason"].values]
+    assert SCRIPT in reasons[0] and QUOTES in reasons[1]  # the hostile text did reach a reason
+    panels = hostile.panels  # every panel built
+    fragments = _html_values(hostile.widget)
+    assert len(fragments) > 10
+    shown = []
+    for frag in fragments:
+        page = _page(frag)
+        assert "script" not in page.tags, frag[:200]  # never markup
+        assert SCRIPT not in frag and QUOTES not in frag  # never raw in the page
+        shown.append("".join(page.text))
+    text = "\n".join(shown)
+    # ... but shown to the reader as the very characters of the file (html.escape, decoded)
+    assert html.escape(SCRIPT) in "".join(fragments)
+    for where, frag in (("hit reasons", panels[0].table.value),
+                        ("fit quality", panels[3].quality.value),
+                        ("shape table", panels[4].shapes.value)):
+        t = "".join(_page(frag).text)
+        assert SCRIPT in t and QUOTES in t, where
+    assert reasons[0] in "".join(_page(panels[0].table.value).text)  # the whole reason, as text
+    assert f"bay {SCRIPT}.nc" in text  # the desk's header names the file, as text
+    # plotly reads names as its own markup: the figures get the escaped names
+    assert [tr.name for tr in panels[0].resp_fig.data][:2] == [html.escape(SCRIPT), html.escape(QUOTES)]
+    assert [tr.name for tr in panels[1].fig.data][:2] == [html.escape(SCRIPT), html.escape(QUOTES)]
+    assert list(panels[4].shape_fig.data[1].text)[:2] == [html.escape(SCRIPT), html.escape(QUOTES)]
+
+
+def test_hostile_text_in_an_error_is_escaped(hostile):
+    p = hostile.window
+    p.end.value = p.start.value - 0.01  # refused with a one-line error in the status line
+    frag = p.status.value
+    assert "modalnb-error" in frag and "script" not in _page(frag).tags
+    hostile.analysis.error = f"channel {SCRIPT} {QUOTES}"  # a message quoting a channel name
+    p._show_status()
+    frag = p.status.value
+    assert SCRIPT not in frag and f"channel {SCRIPT} {QUOTES}" in "".join(_page(frag).text)
+    hostile.analysis.error = None

@@ -1,4 +1,4 @@
-"""One call that puts the five panels together: :func:`analysis_desk`."""
+"""One call that puts the panels together: :func:`analysis_desk`."""
 
 from __future__ import annotations
 
@@ -11,13 +11,21 @@ import xarray as xr
 
 from ..recipe import Recipe
 from ..session import Analysis
-from .panels import FitPanel, HitPanel, ModesPanel, TablePanel, WindowPanel
+from ._base import Panel, esc
+from .fit_check import FitPanel
+from .hits import HitPanel
+from .modal_table import TablePanel
+from .modes import ModesPanel
+from .time_window import WindowPanel
 
-__all__ = ["Desk", "analysis_desk"]
+__all__ = ["Desk", "analysis_desk", "PANELS"]
+
+#: The desk's tabs, in working order. A new panel is one entry here.
+PANELS: tuple[type[Panel], ...] = (HitPanel, WindowPanel, ModesPanel, FitPanel, TablePanel)
 
 
 class Desk:
-    """The five panels of one analysis in tabs (``desk.widget``), in working order.
+    """The panels of one analysis in tabs (``desk.widget``), in working order.
 
     A panel is built the first time its tab is opened (or its attribute is read), so a
     notebook shows the first tab quickly and the browser draws only the figures in view.
@@ -25,52 +33,57 @@ class Desk:
     Attributes
     ----------
     analysis : Analysis
-    hits, window, modes, fit, table : the panels (each also usable alone)
+    hits, window, modes, fit, table : Panel
+        The panels, by their ``key`` (each also usable alone).
     """
-
-    _KINDS = (("hits", HitPanel), ("window", WindowPanel), ("modes", ModesPanel),
-              ("fit", FitPanel), ("table", TablePanel))
 
     def __init__(self, analysis: Analysis, *, out_dir: str | Path | None = None) -> None:
         self.analysis = analysis
-        self._out_dir = out_dir
-        self._built: dict[str, Any] = {}
+        self._options: dict[str, Any] = {"out_dir": out_dir}
+        self._built: dict[str, Panel] = {}
         self._boxes = [w.VBox([w.HTML("<i>opening…</i>")], layout=w.Layout(width="100%"))
-                       for _ in self._KINDS]
+                       for _ in PANELS]
         self.tabs = w.Tab(children=self._boxes)
-        for i, (_, cls) in enumerate(self._KINDS):
+        for i, cls in enumerate(PANELS):
             self.tabs.set_title(i, f"{i + 1} · {cls.title}")
         self.tabs.add_class("modalnb-desk-tabs")
         self.tabs.observe(lambda ch: self._panel(int(ch["new"])), "selected_index")
+        saved = (f" · recipe autosaved to <code>{esc(analysis.recipe_path)}</code>"
+                 if analysis.recipe_path else "")
         head = w.HTML(
-            f"<b>modalnb</b> · {analysis.source or 'record set'} · {len(analysis.hits)} hits × "
-            f"{len(analysis.channels)} channels at {analysis.sample_rate:g} Hz"
-            + (f" · recipe autosaved to <code>{analysis.recipe_path}</code>" if analysis.recipe_path else "")
-        )
+            f"<b>modalnb</b> · {esc(analysis.source or 'record set')} · {len(analysis.hits)} hits × "
+            f"{len(analysis.channels)} channels at {analysis.sample_rate:g} Hz{saved}")
+        head.add_class("modalnb-desk-head")
         self.widget = w.VBox([head, self.tabs])
         self.widget.add_class("modalnb-desk")
         self.tabs.selected_index = 0
         self._panel(0)
 
-    def _panel(self, i: int) -> Any:
-        name, cls = self._KINDS[i]
-        if name not in self._built:
-            panel = cls(self.analysis, out_dir=self._out_dir) if cls is TablePanel else cls(self.analysis)
-            self._built[name] = panel
+    def _panel(self, i: int) -> Panel:
+        cls = PANELS[i]
+        if cls.key not in self._built:
+            panel = cls.for_desk(self.analysis, **self._options)
+            self._built[cls.key] = panel
             self._boxes[i].children = [panel.widget]
-        return self._built[name]
+        return self._built[cls.key]
 
-    hits = property(lambda self: self._panel(0), doc="the hit review panel")
-    window = property(lambda self: self._panel(1), doc="the fit-window panel")
-    modes = property(lambda self: self._panel(2), doc="the mode-finding panel")
-    fit = property(lambda self: self._panel(3), doc="the fit-check panel")
-    table = property(lambda self: self._panel(4), doc="the modal-table panel")
+    def __getattr__(self, name: str) -> Panel:
+        # desk.hits, desk.window, ...: the panel whose key is `name` (built on first use)
+        for i, cls in enumerate(PANELS):
+            if cls.key == name:
+                return self._panel(i)
+        raise AttributeError(f"{type(self).__name__!r} object has no attribute {name!r}")
+
+    def __dir__(self) -> list[str]:
+        return [*super().__dir__(), *(cls.key for cls in PANELS)]
 
     @property
-    def panels(self) -> list[Any]:
-        return [self._panel(i) for i in range(len(self._KINDS))]
+    def panels(self) -> list[Panel]:
+        """Every panel, in tab order (builds those not opened yet)."""
+        return [self._panel(i) for i in range(len(PANELS))]
 
     def close(self) -> None:
+        """Close every built panel and the desk."""
         for p in self._built.values():
             p.close()
         self.widget.close()
@@ -86,7 +99,7 @@ def analysis_desk(
     recipe_path: str | os.PathLike[str] | None = None,
     out_dir: str | Path | None = None,
 ) -> Desk:
-    """Open an analysis (or take one) and show its five panels in tabs.
+    """Open an analysis (or take one) and show its panels in tabs.
 
     Parameters
     ----------
@@ -99,6 +112,11 @@ def analysis_desk(
         Where the recipe is autosaved.
     out_dir : path, optional
         Default export folder of the table panel.
+
+    Returns
+    -------
+    Desk
+        Shows itself in a notebook; ``desk.analysis`` is the state behind it.
 
     Examples
     --------

@@ -1,7 +1,9 @@
-"""JupyterLab + Playwright + Debian Chromium for the real-browser tests (../shared/BROWSER.md).
+"""JupyterLab + Playwright + Debian Chromium for the real-browser tests.
 
-* Without ``chromium`` on PATH the tests are skipped with a reason, unless
-  ``MODALNB_REQUIRE_BROWSER=1`` (CI), which turns a missing browser into a failure.
+* Playwright is a test dependency, imported directly: without it these tests fail, never
+  skip. Without ``chromium`` on PATH they are skipped with a reason, unless
+  ``MODALNB_REQUIRE_BROWSER=1`` (CI), which turns a missing browser into a failure too.
+  Never ``playwright install``: the tests drive the system Chromium.
 * One JupyterLab server per test session, on a free 127.0.0.1 port, with a token, rooted in
   a temporary folder holding a copy of notebooks/; stopped by its PID at the end.
 * One Chromium context per module; every request that does not go to 127.0.0.1 is blocked
@@ -25,6 +27,8 @@ import urllib.request
 from pathlib import Path
 
 import pytest
+from playwright.sync_api import Error as PlaywrightError
+from playwright.sync_api import sync_playwright
 
 CHROMIUM = shutil.which("chromium")
 ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
@@ -37,19 +41,13 @@ SETTINGS = {"@jupyterlab/apputils-extension:notification":
             {"fetchNews": "false", "checkForUpdates": False, "doNotDisturbMode": True}}
 
 
-def _require_browser():
+def _require_browser() -> None:
+    """Skip when there is no Chromium, unless MODALNB_REQUIRE_BROWSER=1: then fail."""
     if CHROMIUM is None:
         if os.environ.get("MODALNB_REQUIRE_BROWSER") == "1":
             pytest.fail("MODALNB_REQUIRE_BROWSER=1 but no `chromium` on PATH "
                         "(apt-get install chromium)", pytrace=False)
         pytest.skip("no `chromium` on PATH (Debian package chromium); real-browser tests skipped")
-    try:
-        from playwright.sync_api import sync_playwright
-    except ImportError:
-        if os.environ.get("MODALNB_REQUIRE_BROWSER") == "1":
-            pytest.fail("MODALNB_REQUIRE_BROWSER=1 but playwright is not installed", pytrace=False)
-        pytest.skip("playwright (pip) not installed; real-browser tests skipped")
-    return sync_playwright
 
 
 def _free_port() -> int:
@@ -112,7 +110,7 @@ def lab():
 @pytest.fixture(scope="module")
 def browser(lab):
     """A Chromium context with every non-127.0.0.1 request blocked and recorded."""
-    sync_playwright = _require_browser()
+    _require_browser()
     external: list[str] = []
     with sync_playwright() as p:
         ctx = p.chromium.launch_persistent_context(
@@ -144,8 +142,6 @@ def shoot(request):
         SCREENSHOTS.mkdir(parents=True, exist_ok=True)
         for i, page in enumerate(pages):
             path = SCREENSHOTS / f"{request.node.name}-{i}.png"
-            from playwright.sync_api import Error as PlaywrightError
-
             try:
                 page.screenshot(path=str(path), full_page=True)
                 print(f"screenshot saved: {path}")

@@ -1,4 +1,4 @@
-"""The quickstart notebook in a real browser (issue 5 §4): JupyterLab + Playwright + Chromium.
+"""The quickstart notebook in a real browser: JupyterLab + Playwright + Chromium.
 
 One notebook page for the whole module, the steps in the order a user takes them: run all;
 figures drawn with data; mode 1 shown within its uncertainty of the demo truth

@@ -1,0 +1,196 @@
+"""Panel 5, modal table: natural frequencies and damping ratios with their uncertainties,
+shapes, MAC between modes and between hits, the shape plot (3-D from the node coordinates
+when present), exports and "save recipe"."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import ipywidgets as w
+import numpy as np
+
+from .._display import PALETTE
+from ..session import Analysis
+from ._base import Panel, esc, fig_box, figure, mode_rows, table_html
+
+__all__ = ["TablePanel"]
+
+#: Shape arrows in the 3-D plot: the largest is this fraction of the sensor layout's span.
+SHAPE_SCALE = 0.25
+
+
+def _phase_text(deg: float) -> str:
+    """Phase in whole degrees within (-180, 180]: -179.7 shows as +180, -0.2 as +0.
+
+    Examples
+    --------
+    >>> _phase_text(-179.7), _phase_text(-0.2), _phase_text(90.4)
+    ('+180°', '+0°', '+90°')
+    """
+    r = int(round(float(deg)))
+    if r <= -180:
+        r += 360
+    return f"{r:+d}°"
+
+
+def _mac_heatmap(fig: Any) -> None:
+    fig.add_heatmap(z=[[0]], zmin=0, zmax=1, colorscale=[list(s) for s in PALETTE.mac_scale],
+                    colorbar={"title": "MAC"}, texttemplate="%{z:.2f}")
+
+
+class TablePanel(Panel):
+    """The modal table, shapes, MAC matrices, shape plot, exports and 'save recipe'."""
+
+    key = "table"
+    css = "modalnb-table-panel"
+    title = "Modal table"
+
+    def __init__(self, analysis: Analysis, out_dir: str | Path | None = None) -> None:
+        super().__init__(analysis)
+        a = analysis
+        if out_dir is None:
+            base = a.recipe_path.parent if a.recipe_path is not None else Path.cwd()
+            stem = a.recipe_path.name.removesuffix(".recipe.json") if a.recipe_path else "modalnb"
+            out_dir = base / f"{stem}-modal-table"
+        self.modes = w.HTML()
+        self.modes.add_class("modalnb-modes-table")
+        self.shapes = w.HTML()
+        self.shapes.add_class("modalnb-shapes-table")
+        self.mode = w.Dropdown(options=[1], value=1, description="mode")
+        self.mode.observe(lambda ch: self._draw_mode(), "value")
+        self.mac_fig = figure(330, title="MAC between modes")
+        _mac_heatmap(self.mac_fig)
+        self.hitmac_fig = figure(330, title="MAC between hits (per-hit residues)")
+        _mac_heatmap(self.hitmac_fig)
+        self.shape_fig = figure(360, title="mode shape")
+        self.out_dir = w.Text(value=str(out_dir), description="folder", layout=w.Layout(width="60%"))
+        self.out_dir.add_class("modalnb-export-dir")
+        self.b_table = w.Button(description="table: CSV, netCDF, JSON", layout=w.Layout(width="220px"))
+        self.b_table.add_class("modalnb-export-table")
+        self.b_report = w.Button(description="HTML report")
+        self.b_report.add_class("modalnb-export-report")
+        self.b_recipe = w.Button(description="save recipe")
+        self.b_recipe.add_class("modalnb-save-recipe")
+        self.export_status = w.HTML()
+        self.export_status.add_class("modalnb-export-status")
+        self.b_table.on_click(lambda _b: self.export(table=True, report=False))
+        self.b_report.on_click(lambda _b: self.export(table=False, report=True))
+        self.b_recipe.on_click(lambda _b: self.save_recipe())
+        self._finish([
+            w.HTML("<b>Modal table.</b> Frequencies and damping ratios with their standard "
+                   "uncertainties; shapes normalised to 1 on the largest channel."),
+            self.modes, self.shapes,
+            w.HBox([fig_box(self.mac_fig, "modalnb-mac-figure")]),
+            self.mode, w.HBox([fig_box(self.hitmac_fig, "modalnb-hitmac-figure"),
+                               fig_box(self.shape_fig, "modalnb-shape-figure")]),
+            w.HBox([self.out_dir]), w.HBox([self.b_table, self.b_report, self.b_recipe]),
+            self.export_status,
+        ])
+
+    @classmethod
+    def for_desk(cls, analysis: Analysis, *, out_dir: str | Path | None = None,
+                 **_options: Any) -> TablePanel:
+        """The desk's export folder becomes the panel's default folder."""
+        return cls(analysis, out_dir=out_dir)
+
+    def _failed(self, exc: Exception) -> None:
+        self.export_status.value = (f'<span class="modalnb-error" style="color:{PALETTE.error}">'
+                                    f"⚠ {esc(' '.join(str(exc).split()))}</span>")
+
+    def export(self, *, table: bool = True, report: bool = True) -> dict[str, Path]:
+        """Write the table files and/or the report into the folder box; return the paths."""
+        self.export_status.value = "⏳ writing…"
+        try:
+            files = self.analysis.export(self.out_dir.value, table=table, report=report)
+        except (ValueError, OSError) as exc:
+            self._failed(exc)
+            return {}
+        self.export_status.value = "wrote " + ", ".join(
+            f'<code class="modalnb-written">{esc(p)}</code>' for p in files.values())
+        return files
+
+    def save_recipe(self) -> Path | None:
+        """Save the recipe (to the autosave file, or into the folder box); return the path."""
+        a = self.analysis
+        target = a.recipe_path or Path(self.out_dir.value) / "recipe.json"
+        try:
+            Path(target).parent.mkdir(parents=True, exist_ok=True)
+            p = a.save_recipe(target)
+        except (ValueError, OSError) as exc:
+            self._failed(exc)
+            return None
+        self.export_status.value = f'recipe saved: <code class="modalnb-written">{esc(p)}</code>'
+        return p
+
+    def refresh(self) -> None:
+        a = self.analysis
+        r = a.result
+        if r is None:
+            return
+        used = a.accepted_hits()
+        self.modes.value = (
+            f'<div class="modalnb-table-hits">from <b class="modalnb-table-nhits">{len(used)}</b> of '
+            f"{len(a.hits)} hits ({', '.join(map(str, used))})</div>"
+        ) + table_html(mode_rows(a), [
+            ("mode", "mode"), ("frequency_hz", "natural frequency [Hz]"), ("frequency_hz_std", "± std [Hz]"),
+            ("damping_ratio", "damping ratio"), ("damping_ratio_std", "± std"), ("regime", "regime"),
+            ("q_factor", "Q"), ("status", "status")], "modalnb-mode-rows", "modalnb-mode")
+        modes = r["mode"].values.tolist()
+        amp, ph = r["shape_amplitude"].values, r["shape_phase_deg"].values
+        srows = []
+        for c, ch in enumerate(a.channels):
+            row = {"channel": ch}
+            for k, mm in enumerate(modes):
+                row[f"m{mm}"] = f"{amp[k, c]:.3f} ∠ {_phase_text(ph[k, c])}"
+            srows.append(row)
+        self.shapes.value = "<b>shapes: amplitude ∠ phase</b>" + table_html(
+            srows, [("channel", "channel")] + [(f"m{mm}", f"mode {mm}") for mm in modes],
+            "modalnb-shape-rows", "modalnb-shape")
+        labels = [f"mode {m}" for m in modes]
+        with self.mac_fig.batch_update():
+            self.mac_fig.data[0].z = a.mac_modes()
+            self.mac_fig.data[0].x = labels
+            self.mac_fig.data[0].y = labels
+        keep = self.mode.value if self.mode.value in modes else (modes[0] if modes else None)
+        self.mode.unobserve_all("value")
+        self.mode.options = modes or [1]
+        if keep is not None:
+            self.mode.value = keep
+        self.mode.observe(lambda ch: self._draw_mode(), "value")
+        self._draw_mode()
+
+    def _draw_mode(self) -> None:
+        a = self.analysis
+        r = a.result
+        if r is None or not r.sizes.get("mode", 0):
+            return
+        m = int(self.mode.value)
+        if "hit_residue_real" in r:
+            hits, mat = a.mac_hits(m)
+            lab = [f"hit {h}" for h in hits]
+            with self.hitmac_fig.batch_update():
+                self.hitmac_fig.data[0].z, self.hitmac_fig.data[0].x, self.hitmac_fig.data[0].y = mat, lab, lab
+                self.hitmac_fig.layout.title = f"MAC between hits, mode {m} (per-hit residues)"
+        k = r["mode"].values.tolist().index(m)
+        s = r["shape_amplitude"].values[k] * np.cos(np.deg2rad(r["shape_phase_deg"].values[k]))
+        coords = a.records.coords
+        names = [esc(ch) for ch in a.channels]  # plotly reads text as its own markup: escape it
+        with self.shape_fig.batch_update():
+            self.shape_fig.data = []
+            if all(n in coords for n in ("x", "y", "z")):
+                x, y, z = (np.asarray(coords[n].values, float) for n in ("x", "y", "z"))
+                span = max(np.ptp(x), np.ptp(y), np.ptp(z), 1e-9)
+                d = SHAPE_SCALE * span * s
+                self.shape_fig.add_scatter3d(x=x, y=y, z=z, mode="markers", name="sensor positions",
+                                             marker={"color": PALETTE.rejected, "size": 4})
+                self.shape_fig.add_scatter3d(x=x, y=y, z=z + d, mode="lines+markers+text",
+                                             name=f"mode {m} (along Z, scaled)", text=names,
+                                             marker={"color": PALETTE.mode, "size": 5},
+                                             line={"color": PALETTE.mode})
+                self.shape_fig.layout.title = f"mode {m} shape at the sensor positions (x, y, z)"
+            else:
+                self.shape_fig.add_scatter(x=names, y=s, mode="lines+markers", name=f"mode {m}",
+                                           marker={"color": PALETTE.mode, "symbol": "diamond", "size": 9},
+                                           line={"color": PALETTE.mode})
+                self.shape_fig.layout.title = f"mode {m} shape along channel order (amplitude × cos phase)"
