@@ -447,3 +447,43 @@ def test_io_does_not_import_widget_stack():
     )
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert done.returncode == 0, done.stdout + done.stderr
+
+
+# ----------------------------------------------------------------------------- further content
+
+
+def test_netcdf_further_variables_are_kept(tmp_path):
+    # a record file from another pipeline may carry its own variables beside the layout;
+    # they come back unchanged (values written by xarray.Dataset.to_netcdf, compared here)
+    ds = _rich_records()
+    temps = np.array([21.5, 22.0])
+    serials = np.array(["S1", "S2", "S3"], dtype=object)
+    more = ds.assign(
+        temperature=("hit", temps, {"units": "degC"}),
+        gain=("channel", np.array([1.0, 2.0, 4.0])),
+    ).assign_coords(serial=("channel", serials))
+    path = tmp_path / "more.nc"
+    more.to_netcdf(path, engine="h5netcdf")
+    back = open_records(path)
+    np.testing.assert_array_equal(back["temperature"].values, temps)
+    assert back["temperature"].attrs == {"units": "degC"}
+    np.testing.assert_array_equal(back["gain"].values, [1.0, 2.0, 4.0])
+    assert back["serial"].values.tolist() == ["S1", "S2", "S3"] and "serial" in back.coords
+    xr.testing.assert_identical(back.drop_vars(["temperature", "gain", "serial"]), ds)
+
+
+def test_list_of_netcdf_files_joins_per_hit_values(tmp_path):
+    ds = _rich_records()  # two hits, excitation_node ["n3", "n1"]
+    paths = []
+    for k in (1, 0):
+        one = ds.isel(hit=[k]).assign(temperature=("hit", [20.0 + k]))
+        paths.append(save_records(one, tmp_path / f"hit{k}.nc"))
+    both = open_records(paths)
+    assert both["hit"].values.tolist() == [1, 2]
+    # files in the order given: the first file holds hit index 1 of the original
+    np.testing.assert_array_equal(both["response"].values, ds["response"].values[[1, 0]])
+    np.testing.assert_array_equal(both["force"].values, ds["force"].values[[1, 0]])
+    assert both["excitation_node"].values.tolist() == ["n1", "n3"]
+    assert both["temperature"].values.tolist() == [21.0, 20.0]
+    assert both["node"].values.tolist() == ["n3", "n2", "n1"]
+    assert both.attrs == ds.attrs

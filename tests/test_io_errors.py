@@ -457,3 +457,20 @@ def test_messages_are_one_line_even_for_multiline_causes(tmp_path):
     path.write_bytes(b"CDF\x01" + b"\xff" * 30)
     msg = _raises(path, "damaged or incomplete")
     assert re.fullmatch(r"[^\n]+", msg)
+
+
+def test_unknown_type_lists_the_formats_with_a_did_you_mean(tmp_path):
+    path = tmp_path / "records.wave"
+    path.write_bytes(b"RIFF")
+    msg = _raises(path, r"unknown file type '\.wave'")
+    assert "netCDF (.nc), CSV (.csv, .txt), WAV (.wav), npz (.npz)" in msg
+    assert msg.endswith("Did you mean '.wav'?")
+
+
+def test_list_with_per_hit_coord_in_one_file_only(tmp_path):
+    resp, t = _good()
+    a, b = tmp_path / "a.npz", tmp_path / "b.npz"
+    np.savez(a, response=resp[0], time=t, excitation_node=np.array(["n1"]))
+    np.savez(b, response=resp[0], time=t)
+    with pytest.raises(RecordError, match=r"b\.npz: coordinate 'excitation_node' differs"):
+        open_records([a, b])
