@@ -146,9 +146,22 @@ def validate_records(ds: Any, *, source: str | None = None) -> xr.Dataset:
     >>> validate_records(ds) is ds
     True
     """
-    w = _where(source)
     if not isinstance(ds, xr.Dataset):
-        raise RecordError(f"{w}expected an xarray.Dataset, got {type(ds).__name__}.")
+        raise RecordError(f"{_where(source)}expected an xarray.Dataset, got {type(ds).__name__}.")
+    _check_response(ds, source)
+    step = _time_step(np.asarray(ds["time"].values), source)
+    _check_labels(ds, source)
+    if "force" in ds.data_vars:
+        _check_force(ds, source)
+    _check_finite(np.asarray(ds["response"].values, dtype=float), "response", ds, source)
+    _check_side_coords(ds, source)
+    _check_attrs(ds, step, source)
+    return ds
+
+
+def _check_response(ds: xr.Dataset, source: str | None) -> None:
+    """``response`` is there, with dims (hit, channel, time), numbers and index coords."""
+    w = _where(source)
     if "response" not in ds.data_vars:
         raise RecordError(
             f"{w}no variable named 'response'. Variables present: {sorted(map(str, ds.data_vars))}."
@@ -165,7 +178,12 @@ def validate_records(ds: Any, *, source: str | None = None) -> xr.Dataset:
     for dim in DIMS:
         if dim not in ds.coords:
             raise RecordError(f"{w}coordinate {dim!r} is missing. Hint: assign it with assign_coords.")
-    step = _time_step(np.asarray(ds["time"].values), source)
+
+
+def _check_labels(ds: xr.Dataset, source: str | None) -> None:
+    """At least one hit and channel; unique string channel names, unique integer hits."""
+    w = _where(source)
+    resp = ds["response"]
     if resp.sizes["hit"] < 1 or resp.sizes["channel"] < 1:
         raise RecordError(f"{w}variable 'response' is empty (sizes {dict(resp.sizes)}).")
     ch = ds["channel"].values
@@ -179,34 +197,43 @@ def validate_records(ds: Any, *, source: str | None = None) -> xr.Dataset:
         raise RecordError(f"{w}coordinate 'hit' must hold integer labels, has {hits.dtype}.")
     if np.unique(hits).size != hits.size:
         raise RecordError(f"{w}hit labels are not unique: {hits.tolist()}.")
-    if "force" in ds.data_vars:
-        f = ds["force"]
-        if tuple(f.dims) != ("hit", "time"):
-            raise RecordError(
-                f"{w}variable 'force' has dims {tuple(map(str, f.dims))}, expected ('hit', 'time')."
-            )
-        _check_numeric(f, "force", source)
-        _check_finite(np.asarray(f.values, dtype=float), "force", ds, source)
-    _check_finite(np.asarray(resp.values, dtype=float), "response", ds, source)
+
+
+def _check_force(ds: xr.Dataset, source: str | None) -> None:
+    f = ds["force"]
+    if tuple(f.dims) != ("hit", "time"):
+        raise RecordError(
+            f"{_where(source)}variable 'force' has dims {tuple(map(str, f.dims))}, expected "
+            "('hit', 'time')."
+        )
+    _check_numeric(f, "force", source)
+    _check_finite(np.asarray(f.values, dtype=float), "force", ds, source)
+
+
+def _check_side_coords(ds: xr.Dataset, source: str | None) -> None:
+    w = _where(source)
     for name in _PER_CHANNEL:
         if name in ds.coords and tuple(ds[name].dims) != ("channel",):
             raise RecordError(f"{w}coordinate {name!r} must be per channel (dim 'channel').")
     for name in _PER_HIT:
         if name in ds.coords and tuple(ds[name].dims) != ("hit",):
             raise RecordError(f"{w}coordinate {name!r} must be per hit (dim 'hit').")
+    if "full_scale" in ds.coords and np.any(~(np.asarray(ds["full_scale"].values, float) > 0)):
+        raise RecordError(f"{w}coordinate 'full_scale' must be positive on every channel.")
+
+
+def _check_attrs(ds: xr.Dataset, step: float, source: str | None) -> None:
+    """Positive numeric attrs; ``sample_rate`` agrees with the time step to 1 %."""
     if "sample_rate" in ds.attrs:
         fs = _positive_attr(ds, "sample_rate", source)
         if abs(fs * step - 1.0) > TIME_STEP_RTOL:
             raise RecordError(
-                f"{w}attribute sample_rate={fs:g} Hz disagrees with the time step "
+                f"{_where(source)}attribute sample_rate={fs:g} Hz disagrees with the time step "
                 f"{step:.6g} s ({1 / step:.6g} Hz). Hint: fix or drop the attribute."
             )
     for name in ("exponential_window_tau_s", "full_scale", "force_full_scale"):
         if name in ds.attrs:
             _positive_attr(ds, name, source)
-    if "full_scale" in ds.coords and np.any(~(np.asarray(ds["full_scale"].values, float) > 0)):
-        raise RecordError(f"{w}coordinate 'full_scale' must be positive on every channel.")
-    return ds
 
 
 def _positive_attr(ds: xr.Dataset, name: str, source: str | None) -> float:
@@ -260,7 +287,14 @@ def _str_array(values: Any) -> np.ndarray:
     return np.array(out, dtype=object).reshape(arr.shape)
 
 
-def _is_real_numeric(a: np.ndarray) -> bool:
+def is_real_numeric(a: np.ndarray) -> bool:
+    """True for integer and floating arrays (not bool, complex, str or object).
+
+    Examples
+    --------
+    >>> is_real_numeric(np.zeros(3)), is_real_numeric(np.array(["a"]))
+    (True, False)
+    """
     return a.dtype.kind in "iuf"
 
 
@@ -295,7 +329,7 @@ def _side_coords(
 
 
 def _checked_force(w: str, force: np.ndarray, n_hit: int, n_t: int) -> np.ndarray:
-    if not _is_real_numeric(force):
+    if not is_real_numeric(force):
         raise RecordError(f"{w}variable 'force' must hold real numbers, its type is {force.dtype}.")
     if force.shape != (n_hit, n_t):
         raise RecordError(
@@ -374,7 +408,7 @@ def build_records(
     """
     w = _where(source)
     response, time = np.asarray(response), np.asarray(time)
-    if not _is_real_numeric(response):
+    if not is_real_numeric(response):
         raise RecordError(
             f"{w}variable 'response' must hold real numbers, its type is {response.dtype}. "
             "Hint: store the samples as float64."
@@ -389,7 +423,7 @@ def build_records(
             f"{w}'time' has shape {time.shape} but 'response' has {n_t} samples per record. "
             "Hint: give one time value per sample."
         )
-    if not _is_real_numeric(time):
+    if not is_real_numeric(time):
         raise RecordError(f"{w}'time' must hold numbers in seconds, its type is {time.dtype}.")
     names = _str_array(list(channels))
     if names.shape != (n_ch,):

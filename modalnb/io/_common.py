@@ -11,18 +11,7 @@ import numpy as np
 
 from .._errors import RecordError, RecordFileNotFoundError
 
-__all__ = ["check_file", "plain_attrs", "attrs_equal", "is_real_numeric"]
-
-
-def is_real_numeric(a: np.ndarray) -> bool:
-    """True for integer and floating arrays (not bool, complex, str or object).
-
-    Examples
-    --------
-    >>> is_real_numeric(np.zeros(3)), is_real_numeric(np.array(["a"]))
-    (True, False)
-    """
-    return a.dtype.kind in "iuf"
+__all__ = ["check_file", "plain_attrs", "attrs_equal"]
 
 
 def check_file(path: Path, src: str) -> bytes:

@@ -18,8 +18,7 @@ import xarray as xr
 
 from .._errors import RecordError
 from .._utils import did_you_mean
-from ..records import _str_array, build_records
-from ._common import is_real_numeric
+from ..records import _str_array, build_records, is_real_numeric
 
 __all__ = ["read_npz", "NPZ_NAMES"]
 
