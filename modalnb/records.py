@@ -560,7 +560,9 @@ def records_from_arrays(
     names = [f"ch{i + 1}" for i in range(n_ch)] if channels is None else [str(c) for c in channels]
     if len(names) != n_ch:
         raise RecordError(f"{len(names)} channel names given for {n_ch} response channels.")
-    hit_arr = np.asarray(list(range(1, n_hit + 1)) if hits is None else hits)
+    if hits is None:
+        hits = list(range(1, n_hit + 1))
+    hit_arr = np.asarray(hits)
     if hit_arr.shape != (n_hit,) or not np.issubdtype(hit_arr.dtype, np.integer):
         raise RecordError(f"`hits` must be {n_hit} integer labels, got {list(hits)!r}.")
     side: dict[str, np.ndarray] = {}

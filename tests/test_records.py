@@ -145,3 +145,9 @@ def test_build_records_errors_name_the_source(kwargs, match):
     args.update(kwargs)
     with pytest.raises(RecordError, match=match):
         build_records(args.pop("response"), args.pop("time"), source="rig.csv", **args)
+
+
+def test_records_from_arrays_empty_response_is_a_record_error():
+    # found by the property test: an empty (0, 0, 0) response must give our error
+    with pytest.raises(RecordError, match="integer labels|too few samples|empty"):
+        records_from_arrays(np.zeros((0, 0, 0)), 100.0)
