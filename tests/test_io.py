@@ -31,7 +31,7 @@ def _signals(rng: np.random.Generator, n_hit: int, n_ch: int, n_t: int) -> np.nd
 
 
 def _assert_layout(ds: xr.Dataset) -> None:
-    """The exact record-set layout promised by modalnb.records (issue 2, section 2)."""
+    """The exact record-set layout promised by the modalnb.records module docstring."""
     validate_records(ds)
     assert ds["response"].dims == ("hit", "channel", "time")
     assert ds["response"].dtype == np.float64
@@ -149,7 +149,7 @@ def test_npz_two_dims_with_sample_rate(tmp_path):
     ds = open_records(path)
     _assert_layout(ds)
     np.testing.assert_array_equal(ds["response"].values[0], resp)
-    assert ds["hit"].values.tolist() == [1]  # issue 2 section 2: readers label hits 1..N
+    assert ds["hit"].values.tolist() == [1]  # modalnb.open_records docs: hits labelled 1..N
     assert ds.attrs["sample_rate"] == FS
     # uniform sampling: t_k = k / fs
     np.testing.assert_allclose(ds["time"].values, np.arange(64) / FS, rtol=0, atol=1e-15)
@@ -436,7 +436,7 @@ def test_segmentation_drops_cut_off_first_record():
 
 
 def test_io_does_not_import_widget_stack():
-    # house rule 7: pure computation never imports ipywidgets or plotly, even indirectly;
+    # pure computation never imports ipywidgets or plotly, even indirectly (DEVELOPERS.md);
     # checked in a fresh interpreter so other tests' imports cannot mask it
     import subprocess
     import sys

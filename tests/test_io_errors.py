@@ -1,6 +1,7 @@
 """Bad input to modalnb.io: our own one-line error, starting with the file name.
 
-The list of cases is the "Bad input" section of issue 2; the broken files are written by
+Every bad file gives a one-line RecordError that starts with the file name and leaves the
+file as it was (the promise in the modalnb.io docstring); the broken files are written by
 independent writers (numpy.savez, Python's csv module, xarray.Dataset.to_netcdf,
 scipy.io.wavfile.write) or are plain bytes.
 """
@@ -29,7 +30,7 @@ def _raises(path, match, **options) -> str:
     with pytest.raises(RecordError, match=match) as info:
         open_records(path, **options)
     msg = str(info.value)
-    assert "\n" not in msg  # one line (issue 2, Bad input)
+    assert "\n" not in msg  # one line (modalnb.io docstring)
     assert msg.startswith(str(path))  # "Error messages start with the file name"
     if before is not None:
         assert (path.read_bytes(), os.stat(path).st_mtime_ns) == before  # never modified

@@ -1,4 +1,4 @@
-"""The record-set layout and its validator (issue 2 §2)."""
+"""The record-set layout (modalnb.records module docstring) and its validator."""
 
 from __future__ import annotations
 
