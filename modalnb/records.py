@@ -312,17 +312,22 @@ def _checked_hits(w: str, hits: Any, n_hit: int) -> np.ndarray:
     return hits.astype(np.int64)
 
 
+def _is_text(values: np.ndarray) -> bool:
+    if values.dtype.kind in "SU":
+        return True
+    return values.dtype.kind == "O" and all(isinstance(v, str | bytes) for v in values.tolist())
+
+
 def _side_coords(
-    w: str, coords: Mapping[str, Any] | None, dim: str, n: int, what: str
+    w: str, coords: Mapping[str, Any] | None, dim: str, n: int
 ) -> dict[str, tuple[str, np.ndarray]]:
+    """Per-channel or per-hit coords along `dim` (length `n`); text as object arrays of str."""
     out: dict[str, tuple[str, np.ndarray]] = {}
     for name, values in (coords or {}).items():
         values = np.asarray(values)
         if values.shape != (n,):
-            raise RecordError(
-                f"{w}{name!r} has shape {values.shape}, expected one per {what} ({n})."
-            )
-        if values.dtype.kind in "SUO":
+            raise RecordError(f"{w}{name!r} has shape {values.shape}, expected one per {dim} ({n}).")
+        if _is_text(values):
             values = _str_array(values)
         out[str(name)] = (dim, values)
     return out
@@ -433,8 +438,8 @@ def build_records(
         "channel": names,
         "time": ("time", time.astype(np.float64), {"units": "s"}),
     }
-    coords.update(_side_coords(w, channel_coords, "channel", n_ch, "channel"))
-    coords.update(_side_coords(w, hit_coords, "hit", n_hit, "hit"))
+    coords.update(_side_coords(w, channel_coords, "channel", n_ch))
+    coords.update(_side_coords(w, hit_coords, "hit", n_hit))
     data_vars: dict[str, Any] = {
         "response": (DIMS, response.astype(np.float64), {"units": str(units)})
     }
