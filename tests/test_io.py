@@ -476,7 +476,9 @@ def test_list_of_netcdf_files_joins_per_hit_values(tmp_path):
     ds = _rich_records()  # two hits, excitation_node ["n3", "n1"]
     paths = []
     for k in (1, 0):
-        one = ds.isel(hit=[k]).assign(temperature=("hit", [20.0 + k]))
+        one = ds.isel(hit=[k]).assign(
+            temperature=("hit", [20.0 + k]), gain=("channel", [1.0, 2.0, 4.0])
+        )
         paths.append(save_records(one, tmp_path / f"hit{k}.nc"))
     both = open_records(paths)
     assert both["hit"].values.tolist() == [1, 2]
@@ -485,5 +487,6 @@ def test_list_of_netcdf_files_joins_per_hit_values(tmp_path):
     np.testing.assert_array_equal(both["force"].values, ds["force"].values[[1, 0]])
     assert both["excitation_node"].values.tolist() == ["n1", "n3"]
     assert both["temperature"].values.tolist() == [21.0, 20.0]
+    assert both["gain"].values.tolist() == [1.0, 2.0, 4.0]  # equal in every file: kept once
     assert both["node"].values.tolist() == ["n3", "n2", "n1"]
     assert both.attrs == ds.attrs

@@ -475,3 +475,15 @@ def test_list_with_per_hit_coord_in_one_file_only(tmp_path):
     np.savez(b, response=resp[0], time=t)
     with pytest.raises(RecordError, match=r"b\.npz: coordinate 'excitation_node' differs"):
         open_records([a, b])
+
+
+def test_list_with_different_further_variables_names_the_file(tmp_path):
+    resp, t = _good()
+    base = records_from_arrays(resp, FS)
+    a = save_records(base.assign(gain=("channel", [1.0, 2.0])), tmp_path / "a.nc")
+    b = save_records(base, tmp_path / "b.nc")
+    c = save_records(base.assign(gain=("channel", [1.0, 3.0])), tmp_path / "c.nc")
+    with pytest.raises(RecordError, match=r"b\.nc: further variables \[\] differ from \['gain'\]"):
+        open_records([a, b])
+    with pytest.raises(RecordError, match=r"c\.nc: variable 'gain' differs from .*a\.nc"):
+        open_records([a, c])

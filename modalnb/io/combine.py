@@ -66,19 +66,30 @@ def _alike(src: str, ds: xr.Dataset, src0: str, first: xr.Dataset) -> None:
         raise RecordError(f"{src}: attributes {ds.attrs} differ from {src0} ({first.attrs}).")
 
 
-def _joined_extra(src0: str, parts: Sequence[dict[str, Any]]) -> xr.Dataset | None:
-    """Further variables: those along ``hit`` joined in file order, the others the first's."""
+def _joined_extra(sources: Sequence[str], parts: Sequence[dict[str, Any]]) -> xr.Dataset | None:
+    """Further variables: those along ``hit`` joined in file order, the others equal in all."""
     extras = [p["extra"] for p in parts]
-    if all(e is None for e in extras):
+    first = extras[0]
+    names = sorted(map(str, first.variables)) if first is not None else []
+    for src, extra in zip(sources[1:], extras[1:], strict=True):
+        these = sorted(map(str, extra.variables)) if extra is not None else []
+        if these != names:
+            raise RecordError(
+                f"{src}: further variables {these} differ from {names} in {sources[0]}."
+            )
+        for name in names:
+            if "hit" not in extra[name].dims and not extra[name].equals(first[name]):
+                raise RecordError(f"{src}: variable {name!r} differs from {sources[0]}.")
+    if first is None:
         return None
-    try:
-        return xr.concat(
-            extras, dim="hit", data_vars="minimal", coords="minimal", compat="override"
-        )
-    except (TypeError, ValueError, KeyError) as exc:
-        raise RecordError(
-            f"{src0}: the files hold different further variables ({exc})."
-        ) from None
+    joined = {
+        name: xr.Variable.concat([e[name].variable for e in extras], dim="hit")
+        if "hit" in first[name].dims
+        else first[name].variable
+        for name in names
+    }
+    coords = {n: v for n, v in joined.items() if n in first.coords}
+    return xr.Dataset({n: v for n, v in joined.items() if n not in coords}, coords=coords)
 
 
 def combine_hits(sources: Sequence[str], dsets: Sequence[xr.Dataset]) -> xr.Dataset:
@@ -108,5 +119,5 @@ def combine_hits(sources: Sequence[str], dsets: Sequence[xr.Dataset]) -> xr.Data
         name: np.concatenate([p["hit_coords"][name] for p in parts])
         for name in parts[0]["hit_coords"]
     }
-    joined["extra"] = _joined_extra(sources[0], parts)
+    joined["extra"] = _joined_extra(sources, parts)
     return build_records(**joined, source=sources[0])
