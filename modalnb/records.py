@@ -11,14 +11,17 @@ A record set is an :class:`xarray.Dataset` with
 * optional attrs ``sample_rate`` (Hz), ``exponential_window_tau_s`` (s),
   ``full_scale`` and ``force_full_scale`` (ADC full scale in the variable's units).
 
-:func:`validate_records` checks a dataset against this layout and raises
-:class:`~modalnb.RecordError` with a one-line message when it does not fit; it never
-repairs anything silently.
+:func:`build_records` is the one constructor of record sets: every reader in
+:mod:`modalnb.io`, the segmentation of a continuous recording and the user-facing
+:func:`records_from_arrays` build through it, so a record set has one form whatever its
+origin. :func:`record_parts` is its inverse. :func:`validate_records` checks a dataset
+against this layout and raises :class:`~modalnb.RecordError` with a one-line message when
+it does not fit; it never repairs anything silently.
 """
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -32,6 +35,8 @@ __all__ = [
     "MIN_SAMPLES",
     "validate_records",
     "records_from_arrays",
+    "build_records",
+    "record_parts",
     "get_sample_rate",
     "has_force",
     "records_checksum",
@@ -141,9 +146,22 @@ def validate_records(ds: Any, *, source: str | None = None) -> xr.Dataset:
     >>> validate_records(ds) is ds
     True
     """
-    w = _where(source)
     if not isinstance(ds, xr.Dataset):
-        raise RecordError(f"{w}expected an xarray.Dataset, got {type(ds).__name__}.")
+        raise RecordError(f"{_where(source)}expected an xarray.Dataset, got {type(ds).__name__}.")
+    _check_response(ds, source)
+    step = _time_step(np.asarray(ds["time"].values), source)
+    _check_labels(ds, source)
+    if "force" in ds.data_vars:
+        _check_force(ds, source)
+    _check_finite(np.asarray(ds["response"].values, dtype=float), "response", ds, source)
+    _check_side_coords(ds, source)
+    _check_attrs(ds, step, source)
+    return ds
+
+
+def _check_response(ds: xr.Dataset, source: str | None) -> None:
+    """``response`` is there, with dims (hit, channel, time), numbers and index coords."""
+    w = _where(source)
     if "response" not in ds.data_vars:
         raise RecordError(
             f"{w}no variable named 'response'. Variables present: {sorted(map(str, ds.data_vars))}."
@@ -160,7 +178,12 @@ def validate_records(ds: Any, *, source: str | None = None) -> xr.Dataset:
     for dim in DIMS:
         if dim not in ds.coords:
             raise RecordError(f"{w}coordinate {dim!r} is missing. Hint: assign it with assign_coords.")
-    step = _time_step(np.asarray(ds["time"].values), source)
+
+
+def _check_labels(ds: xr.Dataset, source: str | None) -> None:
+    """At least one hit and channel; unique string channel names, unique integer hits."""
+    w = _where(source)
+    resp = ds["response"]
     if resp.sizes["hit"] < 1 or resp.sizes["channel"] < 1:
         raise RecordError(f"{w}variable 'response' is empty (sizes {dict(resp.sizes)}).")
     ch = ds["channel"].values
@@ -174,34 +197,43 @@ def validate_records(ds: Any, *, source: str | None = None) -> xr.Dataset:
         raise RecordError(f"{w}coordinate 'hit' must hold integer labels, has {hits.dtype}.")
     if np.unique(hits).size != hits.size:
         raise RecordError(f"{w}hit labels are not unique: {hits.tolist()}.")
-    if "force" in ds.data_vars:
-        f = ds["force"]
-        if tuple(f.dims) != ("hit", "time"):
-            raise RecordError(
-                f"{w}variable 'force' has dims {tuple(map(str, f.dims))}, expected ('hit', 'time')."
-            )
-        _check_numeric(f, "force", source)
-        _check_finite(np.asarray(f.values, dtype=float), "force", ds, source)
-    _check_finite(np.asarray(resp.values, dtype=float), "response", ds, source)
+
+
+def _check_force(ds: xr.Dataset, source: str | None) -> None:
+    f = ds["force"]
+    if tuple(f.dims) != ("hit", "time"):
+        raise RecordError(
+            f"{_where(source)}variable 'force' has dims {tuple(map(str, f.dims))}, expected "
+            "('hit', 'time')."
+        )
+    _check_numeric(f, "force", source)
+    _check_finite(np.asarray(f.values, dtype=float), "force", ds, source)
+
+
+def _check_side_coords(ds: xr.Dataset, source: str | None) -> None:
+    w = _where(source)
     for name in _PER_CHANNEL:
         if name in ds.coords and tuple(ds[name].dims) != ("channel",):
             raise RecordError(f"{w}coordinate {name!r} must be per channel (dim 'channel').")
     for name in _PER_HIT:
         if name in ds.coords and tuple(ds[name].dims) != ("hit",):
             raise RecordError(f"{w}coordinate {name!r} must be per hit (dim 'hit').")
+    if "full_scale" in ds.coords and np.any(~(np.asarray(ds["full_scale"].values, float) > 0)):
+        raise RecordError(f"{w}coordinate 'full_scale' must be positive on every channel.")
+
+
+def _check_attrs(ds: xr.Dataset, step: float, source: str | None) -> None:
+    """Positive numeric attrs; ``sample_rate`` agrees with the time step to 1 %."""
     if "sample_rate" in ds.attrs:
         fs = _positive_attr(ds, "sample_rate", source)
         if abs(fs * step - 1.0) > TIME_STEP_RTOL:
             raise RecordError(
-                f"{w}attribute sample_rate={fs:g} Hz disagrees with the time step "
+                f"{_where(source)}attribute sample_rate={fs:g} Hz disagrees with the time step "
                 f"{step:.6g} s ({1 / step:.6g} Hz). Hint: fix or drop the attribute."
             )
     for name in ("exponential_window_tau_s", "full_scale", "force_full_scale"):
         if name in ds.attrs:
             _positive_attr(ds, name, source)
-    if "full_scale" in ds.coords and np.any(~(np.asarray(ds["full_scale"].values, float) > 0)):
-        raise RecordError(f"{w}coordinate 'full_scale' must be positive on every channel.")
-    return ds
 
 
 def _positive_attr(ds: xr.Dataset, name: str, source: str | None) -> float:
@@ -248,6 +280,214 @@ def _real_array(values: Any, name: str) -> np.ndarray:
         raise RecordError(f"`{name}` must be an array of real numbers, its type is {raw.dtype}.") from None
 
 
+def _str_array(values: Any) -> np.ndarray:
+    """Object array of ``str`` from str/bytes/object values (bytes decoded as UTF-8)."""
+    arr = np.asarray(values)
+    out = [v.decode("utf-8") if isinstance(v, bytes) else str(v) for v in arr.ravel().tolist()]
+    return np.array(out, dtype=object).reshape(arr.shape)
+
+
+def is_real_numeric(a: np.ndarray) -> bool:
+    """True for integer and floating arrays (not bool, complex, str or object).
+
+    Examples
+    --------
+    >>> is_real_numeric(np.zeros(3)), is_real_numeric(np.array(["a"]))
+    (True, False)
+    """
+    return a.dtype.kind in "iuf"
+
+
+def _checked_hits(w: str, hits: Any, n_hit: int) -> np.ndarray:
+    if hits is None:
+        return np.arange(1, n_hit + 1, dtype=np.int64)
+    hits = np.asarray(hits)
+    if hits.shape != (n_hit,) or hits.dtype.kind not in "iu":
+        raise RecordError(
+            f"{w}'hit' must hold {n_hit} integer labels, has shape {hits.shape} and type "
+            f"{hits.dtype}."
+        )
+    if hits.dtype.kind == "u" and hits.size and int(hits.max()) > np.iinfo(np.int64).max:
+        raise RecordError(f"{w}hit labels are too large for 64-bit integers.")
+    return hits.astype(np.int64)
+
+
+def _is_text(values: np.ndarray) -> bool:
+    if values.dtype.kind in "SU":
+        return True
+    return values.dtype.kind == "O" and all(isinstance(v, str | bytes) for v in values.tolist())
+
+
+def _side_coords(
+    w: str, coords: Mapping[str, Any] | None, dim: str, n: int
+) -> dict[str, tuple[str, np.ndarray]]:
+    """Per-channel or per-hit coords along `dim` (length `n`); text as object arrays of str."""
+    out: dict[str, tuple[str, np.ndarray]] = {}
+    for name, values in (coords or {}).items():
+        values = np.asarray(values)
+        if values.shape != (n,):
+            raise RecordError(f"{w}{name!r} has shape {values.shape}, expected one per {dim} ({n}).")
+        if _is_text(values):
+            values = _str_array(values)
+        out[str(name)] = (dim, values)
+    return out
+
+
+def _checked_force(w: str, force: np.ndarray, n_hit: int, n_t: int) -> np.ndarray:
+    if not is_real_numeric(force):
+        raise RecordError(f"{w}variable 'force' must hold real numbers, its type is {force.dtype}.")
+    if force.shape != (n_hit, n_t):
+        raise RecordError(
+            f"{w}variable 'force' has shape {force.shape}, expected (hit, time) = {(n_hit, n_t)}."
+        )
+    return force.astype(np.float64)
+
+
+def build_records(
+    response: np.ndarray,
+    time: np.ndarray,
+    *,
+    channels: Sequence[Any],
+    force: np.ndarray | None = None,
+    hits: np.ndarray | None = None,
+    units: str = "m/s^2",
+    force_units: str = "N",
+    channel_coords: Mapping[str, Any] | None = None,
+    hit_coords: Mapping[str, Any] | None = None,
+    attrs: Mapping[str, Any] | None = None,
+    var_attrs: Mapping[str, Mapping[str, Any]] | None = None,
+    extra: xr.Dataset | None = None,
+    source: str | None = None,
+) -> xr.Dataset:
+    """Build a validated record set from arrays: the one constructor of record sets.
+
+    Every reader in :mod:`modalnb.io`, :func:`records_from_arrays` and the segmentation of
+    a continuous recording end here, so a record set always comes out in one form:
+    ``response`` and ``force`` float64, ``time`` float64 (attr ``units = "s"``), ``hit``
+    int64, channel names and string coords as object arrays of ``str``.
+
+    Parameters
+    ----------
+    response : numpy.ndarray
+        Shape (hit, channel, time), real numbers.
+    time : numpy.ndarray
+        Shape (time,), seconds.
+    channels : sequence of str
+        One name per channel (bytes are decoded as UTF-8).
+    force : numpy.ndarray, optional
+        Shape (hit, time).
+    hits : numpy.ndarray, optional
+        Integer hit labels; default 1..N.
+    units, force_units : str
+        The ``units`` attrs of response and force.
+    channel_coords, hit_coords : mapping of str to array, optional
+        Per-channel coords (``node``, ``direction``, ``x``, ...) and per-hit coords
+        (``excitation_node``, ...).
+    attrs : mapping, optional
+        Dataset attributes.
+    var_attrs : mapping of str to mapping, optional
+        Attributes of named variables; an entry replaces that variable's default attrs
+        (the units above) whole, so a file's attrs come back as they were.
+    extra : xarray.Dataset, optional
+        Further variables to keep as they are (e.g. from a netCDF file), without the
+        ``hit``, ``channel`` and ``time`` index coords.
+    source : str, optional
+        File name or origin, put at the start of error messages.
+
+    Returns
+    -------
+    xarray.Dataset
+        A record set that passes :func:`validate_records`.
+
+    Raises
+    ------
+    RecordError
+        A one-line message starting with `source` when an array has the wrong type or shape.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> ds = build_records(np.zeros((1, 2, 32)), np.arange(32) / 256.0, channels=["a", "b"])
+    >>> ds["hit"].values.tolist(), ds["channel"].values.tolist(), ds["time"].attrs
+    ([1], ['a', 'b'], {'units': 's'})
+    """
+    w = _where(source)
+    response, time = np.asarray(response), np.asarray(time)
+    if not is_real_numeric(response):
+        raise RecordError(
+            f"{w}variable 'response' must hold real numbers, its type is {response.dtype}. "
+            "Hint: store the samples as float64."
+        )
+    if response.ndim != 3:
+        raise RecordError(
+            f"{w}variable 'response' must have dims {DIMS}, has shape {response.shape}."
+        )
+    n_hit, n_ch, n_t = response.shape
+    if time.ndim != 1 or time.size != n_t:
+        raise RecordError(
+            f"{w}'time' has shape {time.shape} but 'response' has {n_t} samples per record. "
+            "Hint: give one time value per sample."
+        )
+    if not is_real_numeric(time):
+        raise RecordError(f"{w}'time' must hold numbers in seconds, its type is {time.dtype}.")
+    names = _str_array(list(channels))
+    if names.shape != (n_ch,):
+        raise RecordError(f"{w}{len(channels)} channel names for {n_ch} response channels.")
+    coords: dict[str, Any] = {
+        "hit": _checked_hits(w, hits, n_hit),
+        "channel": names,
+        "time": ("time", time.astype(np.float64), {"units": "s"}),
+    }
+    coords.update(_side_coords(w, channel_coords, "channel", n_ch))
+    coords.update(_side_coords(w, hit_coords, "hit", n_hit))
+    data_vars: dict[str, Any] = {
+        "response": (DIMS, response.astype(np.float64), {"units": str(units)})
+    }
+    if force is not None:
+        force = _checked_force(w, np.asarray(force), n_hit, n_t)
+        data_vars["force"] = (("hit", "time"), force, {"units": str(force_units)})
+    ds = xr.Dataset(data_vars, coords=coords, attrs=dict(attrs or {}))
+    for name, var_attr in (var_attrs or {}).items():
+        if name in ds.variables:
+            ds[name].attrs = dict(var_attr)
+    if extra is not None:
+        ds = ds.assign_coords({str(k): v.variable for k, v in extra.coords.items()})
+        ds = ds.assign({str(k): v.variable for k, v in extra.data_vars.items()})
+    return validate_records(ds, source=source)
+
+
+def record_parts(ds: xr.Dataset) -> dict[str, Any]:
+    """Split a record set into the arguments of :func:`build_records` (its inverse).
+
+    ``build_records(**record_parts(ds))`` is identical to `ds` when `ds` already has the
+    form :func:`build_records` gives. Readers of files that hold the layout (netCDF) and
+    the combination of several files into one record set go through this.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> ds = records_from_arrays(np.ones((1, 2, 32)), 64.0, node=["n1", "n2"])
+    >>> build_records(**record_parts(ds)).identical(ds)
+    True
+    """
+    per_channel = [str(n) for n, c in ds.coords.items() if n != "channel" and c.dims == ("channel",)]
+    per_hit = [str(n) for n, c in ds.coords.items() if n != "hit" and c.dims == ("hit",)]
+    layout = ["response", "force", *DIMS, *per_channel, *per_hit]
+    rest = ds.drop_vars([n for n in layout if n in ds.variables])
+    return {
+        "response": ds["response"].values,
+        "time": ds["time"].values,
+        "channels": ds["channel"].values.tolist(),
+        "force": ds["force"].values if "force" in ds.data_vars else None,
+        "hits": ds["hit"].values,
+        "channel_coords": {n: ds[n].values for n in per_channel},
+        "hit_coords": {n: ds[n].values for n in per_hit},
+        "attrs": dict(ds.attrs),
+        "var_attrs": {n: dict(ds[n].attrs) for n in layout if n in ds.variables},
+        "extra": rest if rest.variables else None,
+    }
+
+
 def records_from_arrays(
     response: Any,
     sample_rate: float,
@@ -263,7 +503,10 @@ def records_from_arrays(
     position: Any = None,
     attrs: dict[str, Any] | None = None,
 ) -> xr.Dataset:
-    """Build a validated record set from plain arrays.
+    """Build a validated record set from plain arrays sampled at `sample_rate`.
+
+    The front end for users: it checks the arguments (naming them in its errors), makes
+    the time axis ``t0 + k / sample_rate`` and hands over to :func:`build_records`.
 
     Parameters
     ----------
@@ -319,45 +562,43 @@ def records_from_arrays(
             f"`response` must have 1, 2 or 3 dims (hit, channel, time), has shape {r.shape}."
         )
     n_hit, n_ch, n_t = r.shape
-    if channels is None:
-        channels = [f"ch{i + 1}" for i in range(n_ch)]
-    channels = [str(c) for c in channels]
-    if len(channels) != n_ch:
-        raise RecordError(f"{len(channels)} channel names given for {n_ch} response channels.")
+    names = [f"ch{i + 1}" for i in range(n_ch)] if channels is None else [str(c) for c in channels]
+    if len(names) != n_ch:
+        raise RecordError(f"{len(names)} channel names given for {n_ch} response channels.")
     if hits is None:
         hits = list(range(1, n_hit + 1))
     hit_arr = np.asarray(hits)
     if hit_arr.shape != (n_hit,) or not np.issubdtype(hit_arr.dtype, np.integer):
         raise RecordError(f"`hits` must be {n_hit} integer labels, got {list(hits)!r}.")
-    time = float(t0) + np.arange(n_t) / fs
-    coords: dict[str, Any] = {
-        "hit": hit_arr.astype(np.int64),
-        "channel": np.array(channels, dtype=object),
-        "time": time,
-    }
+    side: dict[str, np.ndarray] = {}
     for name, val in (("node", node), ("direction", direction)):
         if val is not None:
-            val = [str(v) for v in val]
-            if len(val) != n_ch:
-                raise RecordError(f"`{name}` has {len(val)} entries for {n_ch} channels.")
-            coords[name] = ("channel", np.array(val, dtype=object))
+            side[name] = np.array([str(v) for v in val], dtype=object)
+            if len(side[name]) != n_ch:
+                raise RecordError(f"`{name}` has {len(side[name])} entries for {n_ch} channels.")
     if position is not None:
         p = np.asarray(position, dtype=float)
         if p.shape != (n_ch, 3):
             raise RecordError(f"`position` must have shape ({n_ch}, 3), has {p.shape}.")
-        for k, axis in enumerate("xyz"):
-            coords[axis] = ("channel", p[:, k], {"units": "m"})
-    data_vars: dict[str, Any] = {"response": (DIMS, r, {"units": str(units)})}
+        side.update({axis: p[:, k] for k, axis in enumerate("xyz")})
+    f = None
     if force is not None:
         f = _real_array(force, "force")
-        if f.ndim == 1:
-            f = f[None, :]
+        f = f[None, :] if f.ndim == 1 else f
         if f.shape != (n_hit, n_t):
             raise RecordError(f"`force` must have shape (hit, time) = {(n_hit, n_t)}, has {f.shape}.")
-        data_vars["force"] = (("hit", "time"), f, {"units": str(force_units)})
-    ds = xr.Dataset(data_vars, coords=coords, attrs={"sample_rate": fs, **(attrs or {})})
-    ds["time"].attrs["units"] = "s"
-    return validate_records(ds)
+    return build_records(
+        r,
+        float(t0) + np.arange(n_t) / fs,
+        channels=names,
+        force=f,
+        hits=hit_arr,
+        units=units,
+        force_units=force_units,
+        channel_coords=side,
+        attrs={"sample_rate": fs, **(attrs or {})},
+        var_attrs={axis: {"units": "m"} for axis in "xyz" if axis in side},
+    )
 
 
 def records_checksum(ds: xr.Dataset) -> str:

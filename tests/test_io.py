@@ -31,7 +31,7 @@ def _signals(rng: np.random.Generator, n_hit: int, n_ch: int, n_t: int) -> np.nd
 
 
 def _assert_layout(ds: xr.Dataset) -> None:
-    """The exact record-set layout promised by modalnb.records (issue 2, section 2)."""
+    """The exact record-set layout promised by the modalnb.records module docstring."""
     validate_records(ds)
     assert ds["response"].dims == ("hit", "channel", "time")
     assert ds["response"].dtype == np.float64
@@ -149,7 +149,7 @@ def test_npz_two_dims_with_sample_rate(tmp_path):
     ds = open_records(path)
     _assert_layout(ds)
     np.testing.assert_array_equal(ds["response"].values[0], resp)
-    assert ds["hit"].values.tolist() == [1]  # issue 2 section 2: readers label hits 1..N
+    assert ds["hit"].values.tolist() == [1]  # modalnb.open_records docs: hits labelled 1..N
     assert ds.attrs["sample_rate"] == FS
     # uniform sampling: t_k = k / fs
     np.testing.assert_allclose(ds["time"].values, np.arange(64) / FS, rtol=0, atol=1e-15)
@@ -436,7 +436,7 @@ def test_segmentation_drops_cut_off_first_record():
 
 
 def test_io_does_not_import_widget_stack():
-    # house rule 7: pure computation never imports ipywidgets or plotly, even indirectly;
+    # pure computation never imports ipywidgets or plotly, even indirectly (DEVELOPERS.md);
     # checked in a fresh interpreter so other tests' imports cannot mask it
     import subprocess
     import sys
@@ -447,3 +447,46 @@ def test_io_does_not_import_widget_stack():
     )
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert done.returncode == 0, done.stdout + done.stderr
+
+
+# ----------------------------------------------------------------------------- further content
+
+
+def test_netcdf_further_variables_are_kept(tmp_path):
+    # a record file from another pipeline may carry its own variables beside the layout;
+    # they come back unchanged (values written by xarray.Dataset.to_netcdf, compared here)
+    ds = _rich_records()
+    temps = np.array([21.5, 22.0])
+    serials = np.array(["S1", "S2", "S3"], dtype=object)
+    more = ds.assign(
+        temperature=("hit", temps, {"units": "degC"}),
+        gain=("channel", np.array([1.0, 2.0, 4.0])),
+    ).assign_coords(serial=("channel", serials))
+    path = tmp_path / "more.nc"
+    more.to_netcdf(path, engine="h5netcdf")
+    back = open_records(path)
+    np.testing.assert_array_equal(back["temperature"].values, temps)
+    assert back["temperature"].attrs == {"units": "degC"}
+    np.testing.assert_array_equal(back["gain"].values, [1.0, 2.0, 4.0])
+    assert back["serial"].values.tolist() == ["S1", "S2", "S3"] and "serial" in back.coords
+    xr.testing.assert_identical(back.drop_vars(["temperature", "gain", "serial"]), ds)
+
+
+def test_list_of_netcdf_files_joins_per_hit_values(tmp_path):
+    ds = _rich_records()  # two hits, excitation_node ["n3", "n1"]
+    paths = []
+    for k in (1, 0):
+        one = ds.isel(hit=[k]).assign(
+            temperature=("hit", [20.0 + k]), gain=("channel", [1.0, 2.0, 4.0])
+        )
+        paths.append(save_records(one, tmp_path / f"hit{k}.nc"))
+    both = open_records(paths)
+    assert both["hit"].values.tolist() == [1, 2]
+    # files in the order given: the first file holds hit index 1 of the original
+    np.testing.assert_array_equal(both["response"].values, ds["response"].values[[1, 0]])
+    np.testing.assert_array_equal(both["force"].values, ds["force"].values[[1, 0]])
+    assert both["excitation_node"].values.tolist() == ["n1", "n3"]
+    assert both["temperature"].values.tolist() == [21.0, 20.0]
+    assert both["gain"].values.tolist() == [1.0, 2.0, 4.0]  # equal in every file: kept once
+    assert both["node"].values.tolist() == ["n3", "n2", "n1"]
+    assert both.attrs == ds.attrs

@@ -1,6 +1,7 @@
 """Bad input to modalnb.io: our own one-line error, starting with the file name.
 
-The list of cases is the "Bad input" section of issue 2; the broken files are written by
+Every bad file gives a one-line RecordError that starts with the file name and leaves the
+file as it was (the promise in the modalnb.io docstring); the broken files are written by
 independent writers (numpy.savez, Python's csv module, xarray.Dataset.to_netcdf,
 scipy.io.wavfile.write) or are plain bytes.
 """
@@ -29,7 +30,7 @@ def _raises(path, match, **options) -> str:
     with pytest.raises(RecordError, match=match) as info:
         open_records(path, **options)
     msg = str(info.value)
-    assert "\n" not in msg  # one line (issue 2, Bad input)
+    assert "\n" not in msg  # one line (modalnb.io docstring)
     assert msg.startswith(str(path))  # "Error messages start with the file name"
     if before is not None:
         assert (path.read_bytes(), os.stat(path).st_mtime_ns) == before  # never modified
@@ -457,3 +458,32 @@ def test_messages_are_one_line_even_for_multiline_causes(tmp_path):
     path.write_bytes(b"CDF\x01" + b"\xff" * 30)
     msg = _raises(path, "damaged or incomplete")
     assert re.fullmatch(r"[^\n]+", msg)
+
+
+def test_unknown_type_lists_the_formats_with_a_did_you_mean(tmp_path):
+    path = tmp_path / "records.wave"
+    path.write_bytes(b"RIFF")
+    msg = _raises(path, r"unknown file type '\.wave'")
+    assert "netCDF (.nc), CSV (.csv, .txt), WAV (.wav), npz (.npz)" in msg
+    assert msg.endswith("Did you mean '.wav'?")
+
+
+def test_list_with_per_hit_coord_in_one_file_only(tmp_path):
+    resp, t = _good()
+    a, b = tmp_path / "a.npz", tmp_path / "b.npz"
+    np.savez(a, response=resp[0], time=t, excitation_node=np.array(["n1"]))
+    np.savez(b, response=resp[0], time=t)
+    with pytest.raises(RecordError, match=r"b\.npz: coordinate 'excitation_node' differs"):
+        open_records([a, b])
+
+
+def test_list_with_different_further_variables_names_the_file(tmp_path):
+    resp, t = _good()
+    base = records_from_arrays(resp, FS)
+    a = save_records(base.assign(gain=("channel", [1.0, 2.0])), tmp_path / "a.nc")
+    b = save_records(base, tmp_path / "b.nc")
+    c = save_records(base.assign(gain=("channel", [1.0, 3.0])), tmp_path / "c.nc")
+    with pytest.raises(RecordError, match=r"b\.nc: further variables \[\] differ from \['gain'\]"):
+        open_records([a, b])
+    with pytest.raises(RecordError, match=r"c\.nc: variable 'gain' differs from .*a\.nc"):
+        open_records([a, c])

@@ -1,6 +1,6 @@
 """Property tests: random shapes, types and bytes give a valid record set or a RecordError.
 
-Issue 2 ("Tests"): random shapes and values never raise anything but our error class. Each
+Random shapes, types and bytes never raise anything but our error class. Each
 test lets only RecordError through; any other exception fails the test, and whatever does
 load must pass validate_records with the exact layout.
 """

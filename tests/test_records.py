@@ -1,4 +1,4 @@
-"""The record-set layout and its validator (issue 2 §2)."""
+"""The record-set layout (modalnb.records module docstring) and its validator."""
 
 from __future__ import annotations
 
@@ -115,3 +115,39 @@ def test_accessor_delegates():
     ds = _ds(fs=640.0)
     assert ds.modalnb.sample_rate == pytest.approx(640.0)
     assert ds.modalnb.validate() is ds
+
+
+def test_build_records_is_the_constructor_behind_records_from_arrays():
+    from modalnb.records import build_records, record_parts
+
+    ds = _ds(t0=-0.01, direction=["+Z", "-Z", "+Y"], node=["a", "b", "c"],
+             position=np.arange(9.0).reshape(3, 3), attrs={"note": "x"})
+    again = build_records(**record_parts(ds))
+    xr.testing.assert_identical(again, ds)
+    assert again["x"].attrs == {"units": "m"} and again["time"].attrs == {"units": "s"}
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "match"),
+    [
+        ({"response": np.zeros((1, 64))}, r"rig\.csv: variable 'response' must have dims"),
+        ({"time": np.zeros(10)}, r"rig\.csv: 'time' has shape \(10,\)"),
+        ({"channels": ["a"]}, r"rig\.csv: 1 channel names for 2 response channels"),
+        ({"force": np.zeros((2, 64))}, r"rig\.csv: variable 'force' has shape \(2, 64\)"),
+        ({"hits": np.array([1.5])}, r"rig\.csv: 'hit' must hold 1 integer labels"),
+        ({"channel_coords": {"node": ["a"]}}, r"rig\.csv: 'node' has shape \(1,\), expected one per channel"),
+    ],
+)
+def test_build_records_errors_name_the_source(kwargs, match):
+    from modalnb.records import build_records
+
+    args = {"response": np.zeros((1, 2, 64)), "time": np.arange(64) / 100.0, "channels": ["a", "b"]}
+    args.update(kwargs)
+    with pytest.raises(RecordError, match=match):
+        build_records(args.pop("response"), args.pop("time"), source="rig.csv", **args)
+
+
+def test_records_from_arrays_empty_response_is_a_record_error():
+    # found by the property test: an empty (0, 0, 0) response must give our error
+    with pytest.raises(RecordError, match="integer labels|too few samples|empty"):
+        records_from_arrays(np.zeros((0, 0, 0)), 100.0)
