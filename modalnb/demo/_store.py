@@ -97,8 +97,9 @@ def write_demo(
     Examples
     --------
     >>> import tempfile
-    >>> with tempfile.TemporaryDirectory() as d:  # doctest: +SKIP
-    ...     paths = write_demo(d, package_data=False)
+    >>> with tempfile.TemporaryDirectory() as d:
+    ...     sorted(p.name for p in write_demo(d, package_data=False))
+    ['demo_campaign.nc', 'demo_hit1.csv', 'demo_truth.json']
     """
     ds, truth = make_demo_campaign(seed)
     written: list[Path] = []

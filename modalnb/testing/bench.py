@@ -735,8 +735,12 @@ def write_bench_json(results: dict[str, Any], path: str | os.PathLike[str]) -> P
 
     Examples
     --------
-    >>> write_bench_json({"a": 1.0}, "bench.json")  # doctest: +SKIP
-    PosixPath('bench.json')
+    >>> import json, tempfile
+    >>> from pathlib import Path
+    >>> with tempfile.TemporaryDirectory() as d:
+    ...     path = write_bench_json({"a": 1.0, "b": float("nan")}, Path(d) / "bench.json")
+    ...     json.loads(path.read_text())
+    {'a': 1.0, 'b': None}
     """
     p = Path(path)
     text = json.dumps(_jsonable(results), indent=2, allow_nan=False)
