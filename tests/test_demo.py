@@ -419,11 +419,12 @@ def test_load_demo_equals_regenerated(campaign):
 def test_reproducible_modes_agree_with_lapack():
     # the bit-reproducible inverse iteration and scipy.linalg.eigh (LAPACK) solve the same
     # FE eigenproblem; they agree to the dense solver's accuracy on the lowest modes
-    # (~1e-9 relative in frequency, eps ||K|| / lambda_1) and their shapes to ~1e-8
+    # (~1e-9 relative in frequency, eps ||K|| / lambda_1; shapes ~1e-10 here, on entries of
+    # order 1, with room for other LAPACK builds)
     exact = cantilever_modes(40)
     lapack = cantilever_modes(40, exact_modes=0)
     np.testing.assert_allclose(exact.frequency_hz[:6], lapack.frequency_hz[:6], rtol=1e-8)
-    np.testing.assert_allclose(exact.deflection[:6], lapack.deflection[:6], rtol=0, atol=1e-7)
+    np.testing.assert_allclose(exact.deflection[:6], lapack.deflection[:6], rtol=0, atol=1e-8)
     np.testing.assert_array_equal(exact.frequency_hz[6:], lapack.frequency_hz[6:])
 
 
