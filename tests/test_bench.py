@@ -119,6 +119,10 @@ def test_smoke_run_structure(smoke, tmp_path) -> None:
     text = format_bench(res)
     for name in ("single_windowed", "close", "three_mode", "refit", "target"):
         assert name in text
+    # 2 trials judge nothing: accuracy ratios are shown without PASS/FAIL marks
+    accuracy_part = text.split("Speed (")[0]
+    assert "not judged" in accuracy_part
+    assert "PASS" not in accuracy_part and "FAIL" not in accuracy_part
 
 
 def test_single_mode_at_40_db_every_trial_is_close_to_the_truth(smoke) -> None:
