@@ -72,8 +72,9 @@ Truth conventions
   channel has amplitude 1 and phase 0 (phases are therefore 0 or 180).
 * Residues: for a unit impulse of force at ``t = 0`` the +Z displacement of sensor ``c``
   is ``sum_k phi_kc phi_kp exp(-sigma_k t) sin(wd_k t) / wd_k`` (Ewins 2000, *Modal
-  Testing: Theory, Practice and Application*, 2nd ed., ch. 2, from memory). Writing ``sin(wd t) / wd = 2 Re(e^{lambda t} /
-  (2 j wd))`` with ``lambda = -sigma + j wd`` and differentiating twice, the acceleration
+  Testing: Theory, Practice and Application*, 2nd ed., ch. 2, from memory). Writing
+  ``sin(wd t) / wd = 2 Re(e^{lambda t} / (2 j wd))`` with ``lambda = -sigma + j wd``
+  and differentiating twice, the acceleration
   for ``t > 0`` is ``sum_k 2 Re(R_kc e^{lambda_k t})`` with
   ``R_kc = phi_kc phi_kp lambda_k^2 / (2 j wd_k)`` (m/s^2 per N s). ``residue_real`` /
   ``residue_imag`` are ``R_kc`` in the global +Z frame; ``residue_*_recorded`` carry the
