@@ -197,7 +197,9 @@ def crlb_modes(
     noise_windowed : bool
         See `window_tau_s`.
     rel_step : float
-        Relative step of the central differences.
+        Relative step of the central differences. 1e-6 is near ``eps^(1/3)``, which
+        balances truncation and rounding error of a central difference (Press et al.
+        2007, *Numerical Recipes*, 3rd ed., sect. 5.7; from memory).
 
     Returns
     -------
