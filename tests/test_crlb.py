@@ -1,4 +1,11 @@
-"""Cramér–Rao bounds checked against published limits and independent estimators."""
+"""Cramér–Rao bounds checked against published limits and independent estimators.
+
+Expected values are written out here, not taken from the module: the published
+undamped limit (Kay 1993; Rife & Boorstyn 1974), the real damped-sinusoid Fisher
+information with its double-frequency terms dropped (derived below from the model), and
+a Fisher information built in this file by central differences of the model written out
+here.
+"""
 
 from __future__ import annotations
 
@@ -6,20 +13,44 @@ import numpy as np
 import pytest
 
 from modalnb._errors import EstimationError
-from modalnb.crlb import (
-    combine_channel_bounds,
-    crlb_closed_form,
-    crlb_modes,
-    damping_std_long_record,
-    sk_sums,
-)
-from modalnb.synth import free_decay
+from modalnb.testing.crlb import crlb_closed_form, crlb_modes, damping_std_long_record, sk_sums
+from modalnb.testing.synth import free_decay
 
 
-def _pole(alpha: float, omega: float) -> tuple[float, float]:
-    """(f_n, zeta) at fs = 1 for the per-sample pole (alpha, omega)."""
-    wn = np.hypot(alpha, omega)
-    return wn / (2 * np.pi), alpha / wn
+def _damped_cosine(t, f, z, a, phi):
+    """x(t) = A exp(-zeta w_n t) cos(w_n sqrt(1 - zeta^2) t + phi), written out here."""
+    wn = 2 * np.pi * f
+    return a * np.exp(-z * wn * t) * np.cos(wn * np.sqrt(1 - z * z) * t + phi)
+
+
+def _fisher_by_differences(t, theta, sigma, weight=None, rel=1e-6):
+    """FIM = J^T J / sigma^2 of (weight *) _damped_cosine over theta = (f, zeta, A, phi).
+
+    Gaussian white noise of std `sigma`: Kay 1993, *Fundamentals of Statistical Signal
+    Processing: Estimation Theory*, eq. (3.31) for a signal in Gaussian noise (from
+    memory). Jacobian by central differences, here, not by modalnb.
+    """
+    w = np.ones_like(t) if weight is None else weight
+    h = rel * np.maximum(np.abs(theta), [1.0, 1e-3, 1.0, 1.0])
+    jac = np.empty((t.size, theta.size))
+    for i in range(theta.size):
+        up, dn = theta.copy(), theta.copy()
+        up[i] += h[i]
+        dn[i] -= h[i]
+        jac[:, i] = w * (_damped_cosine(t, *up) - _damped_cosine(t, *dn)) / (2 * h[i])
+    white = jac / sigma
+    return white.T @ white
+
+
+def _std_from_fim(fim):
+    return np.sqrt(np.diag(np.linalg.inv(fim)))
+
+
+def _sums(n, alpha):
+    """S_k = sum_{n=0}^{N-1} n^k exp(-2 alpha n), k = 0, 1, 2, summed here."""
+    k = np.arange(n, dtype=float)
+    e = np.exp(-2 * alpha * k)
+    return float(np.sum(e)), float(np.sum(k * e)), float(np.sum(k * k * e))
 
 
 @pytest.mark.parametrize("omega", [0.3, 0.7, 2.0])
@@ -28,13 +59,14 @@ def test_undamped_limit_is_the_real_signal_frequency_bound(omega: float) -> None
     b = crlb_modes(np.arange(n), omega / (2 * np.pi), 0.0, a, 0.4, sigma)
     var_w = b.damped_angular_frequency_std[0] ** 2
     # Real sinusoid, var w = sigma^2: var(omega) >= 24 sigma^2 / (A^2 N (N^2-1))
-    # (Kay 1993, Fundamentals of Statistical Signal Processing I, Example 3.14, written
-    # there as 12 / ((2pi)^2 eta N (N^2-1)) in cycles/sample with eta = A^2/(2 sigma^2);
-    # from memory). Rife & Boorstyn 1974 (IEEE Trans. Inf. Theory 20(5):591-598) give
-    # 12 sigma_c^2 / (b^2 N (N^2-1)) for a complex exponential with per-component noise
-    # variance sigma_c^2; a real cosine of amplitude A is b = A/2 at sigma_c^2 = sigma^2/2,
-    # hence the factor 2. The damping parameter is unknown here too, which in the
-    # undamped limit decouples from omega only up to double-frequency terms, so 1 %.
+    # (Kay 1993, Fundamentals of Statistical Signal Processing: Estimation Theory,
+    # Example 3.14, written there as 12 / ((2pi)^2 eta N (N^2-1)) in cycles/sample with
+    # eta = A^2/(2 sigma^2); from memory). Rife & Boorstyn 1974 (IEEE Trans. Inf. Theory
+    # 20(5):591-598) give 12 sigma_c^2 / (b^2 N (N^2-1)) for a complex exponential with
+    # per-component noise variance sigma_c^2; a real cosine of amplitude A is b = A/2 at
+    # sigma_c^2 = sigma^2/2, hence the factor 2. The damping parameter is unknown here too,
+    # which in the undamped limit decouples from omega only up to double-frequency terms,
+    # so 1 %.
     kay = 24 * sigma**2 / (a**2 * n * (n * n - 1))
     assert var_w == pytest.approx(kay, rel=0.01)
     # the complex-convention value with var w taken as the per-component variance is off by 2
@@ -42,19 +74,29 @@ def test_undamped_limit_is_the_real_signal_frequency_bound(omega: float) -> None
 
 
 def test_numeric_fim_matches_sk_closed_form() -> None:
-    # METHODS §3 (real case, derived there): var(alpha) ~ var(omega) ~ (2 s^2/A^2) S0/D,
-    # stated to agree with the numerical FIM to 0.5 % at N = 400, alpha = 0.01, omega = 0.7.
-    # Analytic derivation independent of the central-difference code.
+    # Real damped sinusoid x_n = A e^{-alpha n} cos(omega n + phi) in white noise sigma^2.
+    # Derivatives: dx/dalpha = -n x, dx/domega = -n A e^{-alpha n} sin(.), dx/dA =
+    # e^{-alpha n} cos(.), dx/dphi = -A e^{-alpha n} sin(.). Dropping the double-frequency
+    # terms (cos^2 ~ sin^2 ~ 1/2, sin cos ~ 0: the approximation of Kay 1993, Example 3.14,
+    # from memory) the FIM splits into the blocks (alpha, A) = [[A^2 S2, -A S1],
+    # [-A S1, S0]] / (2 sigma^2) and (omega, phi) = A^2 [[S2, S1], [S1, S0]] / (2 sigma^2),
+    # so var(alpha) = var(omega) = 2 sigma^2 S0 / (A^2 (S0 S2 - S1^2)). The dropped terms
+    # are of relative size ~1/(N omega) here, hence 0.5 %.
     n, alpha, omega, sigma = 400, 0.01, 0.7, 0.1
-    f, z = _pole(alpha, omega)
+    wn = np.hypot(alpha, omega)
+    f, z = wn / (2 * np.pi), alpha / wn
     b = crlb_modes(np.arange(n), f, z, 1.0, 0.3, sigma)
-    s0, s1, s2 = sk_sums(n, alpha)
+    s0, s1, s2 = _sums(n, alpha)
     v = 2 * sigma**2 * s0 / (s0 * s2 - s1 * s1)
     assert b.decay_rate_std[0] ** 2 == pytest.approx(v, rel=0.005)
     assert b.damped_angular_frequency_std[0] ** 2 == pytest.approx(v, rel=0.005)
+    # in (f_n, zeta) by the delta method: f_n = |s|/2pi, zeta = alpha/|s|, with alpha and
+    # omega uncorrelated: var f_n = v/(2pi)^2 and var zeta = v omega^2/|s|^4 (per sample)
     sf, sz = crlb_closed_form(n, 1.0, f, z, 1.0, sigma)
-    assert sf == pytest.approx(b.frequency_hz_std[0], rel=0.005)
-    assert sz == pytest.approx(b.damping_ratio_std[0], rel=0.005)
+    assert sf == pytest.approx(np.sqrt(v) / (2 * np.pi), rel=1e-9)
+    assert sz == pytest.approx(np.sqrt(v) * omega / wn**2, rel=1e-9)
+    assert b.frequency_hz_std[0] == pytest.approx(np.sqrt(v) / (2 * np.pi), rel=0.005)
+    assert b.damping_ratio_std[0] == pytest.approx(np.sqrt(v) * omega / wn**2, rel=0.005)
 
 
 def test_sk_sums_match_geometric_series() -> None:
@@ -68,35 +110,34 @@ def test_sk_sums_match_geometric_series() -> None:
     np.testing.assert_allclose(sk_sums(n, alpha), [s0, s1, s2], rtol=1e-12)
 
 
+
+
 def test_long_record_light_damping_form() -> None:
-    # METHODS §3: std(zeta) ~ 4 zeta^(3/2) sqrt(omega_n dt) sigma/A for a long record of
-    # a lightly damped mode (stated there to match the numerical FIM to 0.3 % at 12.6
-    # time constants); its N -> inf derivation: var(alpha) -> 16 alpha^3 sigma^2 / A^2.
+    # From var(alpha) = 2 sigma^2 S0 / (A^2 (S0 S2 - S1^2)) above with N -> inf:
+    # S0 = 1/(1-r), S1 = r/(1-r)^2, S2 = r(1+r)/(1-r)^3 (r = e^{-2 alpha}; sums of the
+    # geometric series), so S0/(S0 S2 - S1^2) = (1-r)^3/r ~ 8 alpha^3 and
+    # var(alpha) ~ 16 alpha^3 sigma^2/A^2. With alpha = zeta w_n dt and
+    # var(zeta) ~ var(alpha) fs^2 / w_n^2 (zeta << 1):
+    # std(zeta) ~ 4 zeta^(3/2) sqrt(w_n dt) sigma / A. 13 time constants make the record
+    # "infinite" to exp(-26); the light-damping steps cost O(zeta) ~ 1 %.
     fs, f, z, sigma = 1024.0, 61.3, 0.01, 0.01
     n = int(round(13.0 / (z * 2 * np.pi * f) * fs))  # 13 time constants
     b = crlb_modes(np.arange(n) / fs, f, z, 1.0, 0.2, sigma)
-    assert b.damping_ratio_std[0] == pytest.approx(
-        damping_std_long_record(fs, f, z, 1.0, sigma), rel=0.01
-    )
-    # and std(f_n)/f_n ~ std(zeta) (same source)
-    assert b.frequency_hz_std[0] / f == pytest.approx(b.damping_ratio_std[0], rel=0.01)
+    expected = 4 * z**1.5 * np.sqrt(2 * np.pi * f / fs) * sigma / 1.0
+    assert b.damping_ratio_std[0] == pytest.approx(expected, rel=0.01)
+    assert damping_std_long_record(fs, f, z, 1.0, sigma) == pytest.approx(expected, rel=1e-12)
+    # std(f_n)/f_n = sqrt(V)/w_n and std(zeta) = sqrt(V) w_d/w_n^2: equal to O(zeta^2)
+    assert b.frequency_hz_std[0] / f == pytest.approx(b.damping_ratio_std[0], rel=1e-3)
 
 
 def test_delta_method_matches_a_direct_physical_parametrisation() -> None:
-    # Independent FIM built here on the project's generator synth.free_decay, with
-    # (f_n, zeta, A, phi) as parameters directly: the CRLB is invariant under
-    # reparametrisation (Kay 1993 §3.8, from memory), so both routes must agree.
+    # FIM built here by central differences of the damped cosine written out in this
+    # file, with (f_n, zeta, A, phi) as parameters directly: the CRLB is invariant under
+    # reparametrisation (Kay 1993, sect. 3.8, from memory), so the module's route
+    # (poles, then the delta method) must give the same bound.
     fs, f, z, a, phi, sigma = 1024.0, 61.3, 0.012, 1.3, 0.6, 0.02
     t = np.arange(700) / fs
-    theta = np.array([f, z, a, phi])
-    h = 1e-6 * np.array([f, z, a, 1.0])
-    jac = np.empty((t.size, 4))
-    for i in range(4):
-        up, dn = theta.copy(), theta.copy()
-        up[i] += h[i]
-        dn[i] -= h[i]
-        jac[:, i] = (free_decay(t, *up) - free_decay(t, *dn)) / (2 * h[i])
-    cov = np.linalg.inv(jac.T @ jac / sigma**2)
+    cov = np.linalg.inv(_fisher_by_differences(t, np.array([f, z, a, phi]), sigma))
     b = crlb_modes(t, f, z, a, phi, sigma)
     assert b.frequency_hz_std[0] == pytest.approx(np.sqrt(cov[0, 0]), rel=1e-4)
     assert b.damping_ratio_std[0] == pytest.approx(np.sqrt(cov[1, 1]), rel=1e-4)
@@ -106,10 +147,11 @@ def test_delta_method_matches_a_direct_physical_parametrisation() -> None:
 
 
 def test_several_channels_add_their_information() -> None:
-    # Fisher information of independent records adds (Kay 1993 §3, from memory); with
-    # a shared pole and per-channel bounds proportional to sigma_c^2/A_c^2 this is
-    # 1/CRLB_total = sum_c 1/CRLB_c (METHODS §3). Exact when the channels share a phase,
-    # approximate (double-frequency terms) otherwise.
+    # Fisher information of independent records adds (Kay 1993, sect. 3.6, from memory).
+    # With one shared pole and channels that share a phase, each channel's FIM is one
+    # matrix times A_c^2/sigma_c^2, so 1/CRLB = sum_c 1/CRLB_c exactly:
+    # std = 1/sqrt(sum_c 1/std_c^2). With different phases the amplitude/phase nuisance
+    # parameters differ per channel and the relation holds up to double-frequency terms.
     t = np.arange(800) / 1024.0
     f, z = 61.3, 0.012
     amps = np.array([1.0, 0.5, 2.0])
@@ -120,22 +162,40 @@ def test_several_channels_add_their_information() -> None:
         ]
         both = crlb_modes(t, f, z, amps[:, None], phases[:, None], noise)
         for field in ("frequency_hz_std", "damping_ratio_std"):
-            combined = combine_channel_bounds([getattr(s, field)[0] for s in singles])
+            stds = np.array([getattr(s, field)[0] for s in singles])
+            combined = 1.0 / np.sqrt(np.sum(1.0 / stds**2))
             assert getattr(both, field)[0] == pytest.approx(combined, rel=rel)
+    # each single channel's bound against the FIM built here for that channel
+    for a, p, s, single in zip(amps, phases, noise, singles, strict=True):
+        ref = _std_from_fim(_fisher_by_differences(t, np.array([f, z, a, p]), s))
+        assert single.damping_ratio_std[0] == pytest.approx(ref[1], rel=1e-4)
 
 
-def test_exponential_window_with_windowed_noise_loses_no_information() -> None:
-    # A known invertible transformation of the data leaves the Fisher information
-    # unchanged (Kay 1993 §3, from memory): windowing signal and noise by exp(-t/tau)
-    # gives the same bound on the true poles. Noise added after the window is not
-    # weighted down, so the late samples carry less information and the bound grows.
-    t = np.arange(1024) / 1024.0
-    base = crlb_modes(t, 61.3, 0.012, 1.0, 0.3, 0.01)
-    win = crlb_modes(t, 61.3, 0.012, 1.0, 0.3, 0.01, window_tau_s=0.25)
-    np.testing.assert_allclose(win.damping_ratio_std, base.damping_ratio_std, rtol=1e-9)
-    np.testing.assert_allclose(win.frequency_hz_std, base.frequency_hz_std, rtol=1e-9)
-    after = crlb_modes(t, 61.3, 0.012, 1.0, 0.3, 0.01, window_tau_s=0.25, noise_windowed=False)
-    assert after.damping_ratio_std[0] > 1.5 * base.damping_ratio_std[0]
+def test_exponential_window_bounds_against_a_fim_built_here() -> None:
+    # Windowed record w(t) x(t), w = exp(-(t - t_w)/tau) after t_w, 1 before.
+    # (a) noise added after the window (std sigma): FIM = (w J)^T (w J) / sigma^2, built
+    #     here by central differences; the late samples are weighted down, the bound grows.
+    # (b) the measured noise windowed too (std w sigma): FIM = (w J)^T (w J) / (w sigma)^2
+    #     = J^T J / sigma^2, the unwindowed FIM (a known invertible weighting neither adds
+    #     nor removes information, Kay 1993, sect. 3.8, from memory). The expected value is
+    #     the FIM of the unwindowed record built here, so a module that ignored or
+    #     misapplied the window fails (a) or (b).
+    fs, f, z, a, phi, sigma, tau, t_w = 1024.0, 61.3, 0.012, 1.0, 0.3, 0.01, 0.25, 0.1
+    t = np.arange(1024) / fs
+    theta = np.array([f, z, a, phi])
+    w = np.exp(-np.clip(t - t_w, 0.0, None) / tau)
+    plain = _std_from_fim(_fisher_by_differences(t, theta, sigma))
+    after = _std_from_fim(_fisher_by_differences(t, theta, sigma, w))
+    assert after[1] > 1.5 * plain[1]  # (a) and (b) expect different values
+
+    b_after = crlb_modes(
+        t, f, z, a, phi, sigma, window_tau_s=tau, window_start_s=t_w, noise_windowed=False
+    )
+    assert b_after.frequency_hz_std[0] == pytest.approx(after[0], rel=1e-4)
+    assert b_after.damping_ratio_std[0] == pytest.approx(after[1], rel=1e-4)
+    b_win = crlb_modes(t, f, z, a, phi, sigma, window_tau_s=tau, window_start_s=t_w)
+    assert b_win.frequency_hz_std[0] == pytest.approx(plain[0], rel=1e-4)
+    assert b_win.damping_ratio_std[0] == pytest.approx(plain[1], rel=1e-4)
 
 
 def _ml_fit(t, y, f0, z0, guess_amp, guess_phase, noise_std):
@@ -258,10 +318,13 @@ def test_bad_input_raises_one_line_errors() -> None:
 
 
 def test_zero_amplitude_in_one_channel_only_is_fine() -> None:
-    # a mode absent from one channel leaves that channel's phase unidentifiable; the
-    # bound then equals the one from the other channel alone (information adds, and the
-    # empty channel adds none for that mode) -- Kay 1993 §3, from memory
-    t = np.arange(600) / 1024.0
-    one = crlb_modes(t, 61.3, 0.012, 1.0, 0.3, 0.01)
-    two = crlb_modes(t, 61.3, 0.012, [[1.0], [0.0]], [[0.3], [0.0]], [0.01, 0.01])
-    np.testing.assert_allclose(two.damping_ratio_std, one.damping_ratio_std, rtol=1e-6)
+    # a mode absent from one channel leaves that channel's phase unidentifiable (dropped);
+    # the empty channel adds no information on the pole (information adds, Kay 1993,
+    # sect. 3.6, from memory), so the bound is the one of the other channel alone: the
+    # FIM built here from that channel.
+    fs, f, z, a, phi, sigma = 1024.0, 61.3, 0.012, 1.0, 0.3, 0.01
+    t = np.arange(600) / fs
+    ref = _std_from_fim(_fisher_by_differences(t, np.array([f, z, a, phi]), sigma))
+    two = crlb_modes(t, f, z, [[a], [0.0]], [[phi], [0.0]], [sigma, sigma])
+    assert two.frequency_hz_std[0] == pytest.approx(ref[0], rel=1e-4)
+    assert two.damping_ratio_std[0] == pytest.approx(ref[1], rel=1e-4)
