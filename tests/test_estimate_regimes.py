@@ -11,7 +11,7 @@ import pytest
 from scipy.integrate import solve_ivp
 
 from modalnb._errors import EstimationError
-from modalnb.estimate import ModeFit, fit_modes
+from modalnb import ModeFit, fit_modes
 from modalnb.records import records_from_arrays
 from modalnb.synth import add_noise, free_decay
 
@@ -187,7 +187,7 @@ def test_cross_checks_on_the_demo_multimode_records():
     # a strong high mode right after the hit, each cross-check lands within 5 % of the true
     # damping ratio once the band-pass filter's edge ringing is cut off
     from modalnb.demo import load_demo, load_demo_truth
-    from modalnb.estimate import fit_modes
+    from modalnb import fit_modes
 
     res = fit_modes(load_demo())
     truth = [m["damping_ratio"] for m in load_demo_truth()["modes"]]
@@ -202,7 +202,7 @@ def test_stabilisation_chart_marks_the_true_modes_stable():
     # 5 % in zeta, energy above the candidate limit) gather at the four true modes; noise
     # poles of the over-specified orders are mostly not marked
     from modalnb.demo import load_demo, load_demo_truth
-    from modalnb.estimate import ModeFit
+    from modalnb import ModeFit
 
     st = ModeFit().fit(load_demo()).stabilisation_
     f_true = np.array([m["frequency_hz"] for m in load_demo_truth()["modes"]])
