@@ -226,7 +226,8 @@ class Analysis:
         return self._edit_modes(frequency_hz, "drop_modes", "add_modes")
 
     def _edit_modes(self, value: Any, into: str, out_of: str) -> bool:
-        """Put the frequency `value` into one recipe list, removing it (within 5 %) from the other."""
+        """Put the frequency `value` into one recipe list, removing it (within 5 %, the
+        engine's ``drop_modes`` tolerance) from the other."""
         f = self._frequency(value)
         if f is None:
             return False

@@ -74,8 +74,8 @@ def test_conversions_formulas():
 def test_accept_mapping_overrides_only_the_hits_it_names():
     # the demo truth (demo_truth.json): hit 4 is a double hit, hit 6 clips; both rejected by
     # the default checks. A mapping naming hit 4 accepts it and leaves hit 6 rejected.
-    from modalnb.demo import load_demo, load_demo_truth
     from modalnb import fit_modes
+    from modalnb.demo import load_demo, load_demo_truth
     from modalnb.recipe import Recipe
 
     truth = load_demo_truth()
