@@ -20,8 +20,9 @@ from importlib.metadata import PackageNotFoundError, version
 from . import accessor as _accessor  # noqa: F401  (registers ds.modalnb)
 from ._errors import EstimationError, ModalnbError, RecordError, RecordFileNotFoundError
 from .checks import check_hits, format_hit_report
-from .estimate import ModeFit, cross_checks, fit_modes, mac, mac_matrix, modal_conversions, mpc
+from .estimate import cross_checks, mac, mac_matrix, modal_conversions, mpc
 from .export import write_modal_table
+from .fitting import ModeFit, fit_modes
 from .io import open_records, save_records, segment_recording
 from .pipeline import run_recipe
 from .recipe import Recipe, load_recipe, save_recipe

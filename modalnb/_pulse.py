@@ -76,7 +76,9 @@ def contact_end(
     _, peak, end = pulse_bounds(force, time, end_fraction=end_fraction)
     if f.size < 3 or f[peak] == 0:
         return end
-    # robust noise level: median absolute second difference (white noise: var = 6 sigma^2)
+    # robust noise level: median absolute second difference (white noise: var = 6 sigma^2);
+    # 1.4826 = 1/Phi^-1(3/4) turns a median absolute deviation into sigma for Gaussian noise
+    # (Rousseeuw & Croux 1993, "Alternatives to the median absolute deviation", JASA 88(424))
     noise = 1.4826 * float(np.median(np.abs(np.diff(np.asarray(force, float), 2)))) / np.sqrt(6.0)
     level = max(fraction * f[peak], noise_factor * noise)
     above = np.nonzero(f[end:] > level)[0]

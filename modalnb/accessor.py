@@ -52,6 +52,6 @@ class ModalnbAccessor:
 
     def fit_modes(self, **kwargs: Any) -> xr.Dataset:
         """See :func:`modalnb.fit_modes`."""
-        from .estimate import fit_modes
+        from .fitting import fit_modes
 
         return fit_modes(self._ds, **kwargs)

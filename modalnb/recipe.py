@@ -11,15 +11,19 @@ from __future__ import annotations
 
 import json
 import os
-from dataclasses import asdict, dataclass, field, fields
+from dataclasses import asdict, dataclass, field, fields, replace
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from ._errors import ModalnbError
 from ._files import atomic_write_text
-from ._utils import frequency_list
+from ._utils import check_band, frequency_list
 
-__all__ = ["Recipe", "RecipeError", "load_recipe", "save_recipe", "RECIPE_FORMAT", "RECIPE_VERSION"]
+if TYPE_CHECKING:
+    import xarray as xr
+
+__all__ = ["Recipe", "RecipeError", "load_recipe", "save_recipe", "recipe_for", "package_version",
+           "RECIPE_FORMAT", "RECIPE_VERSION"]
 
 #: Value of the ``format`` key that marks a modalnb recipe.
 RECIPE_FORMAT = "modalnb-recipe"
@@ -29,6 +33,23 @@ RECIPE_VERSION = 1
 
 class RecipeError(ModalnbError):
     """A recipe file cannot be read or does not fit the records."""
+
+
+def package_version() -> str:
+    """The installed modalnb version (``modalnb.__version__``), without importing the package.
+
+    Examples
+    --------
+    >>> import modalnb
+    >>> package_version() == modalnb.__version__
+    True
+    """
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("modalnb")
+    except PackageNotFoundError:  # pragma: no cover - running from a source tree
+        return "0.0.0+unknown"
 
 
 def _pair(name: str, value: Any) -> tuple[float, float] | None:
@@ -98,7 +119,7 @@ class Recipe:
     created_with: str = ""
 
     def __post_init__(self) -> None:
-        self.band = _pair("band", self.band)
+        self.band = check_band(self.band, error=RecipeError)
         self.window = _pair("window", self.window)
         if self.n_modes is not None:
             if isinstance(self.n_modes, bool) or not isinstance(self.n_modes, int) or self.n_modes < 1:
@@ -119,9 +140,7 @@ class Recipe:
             raise RecipeError("recipe `check_thresholds` must be an object of keyword arguments.")
         self.correct_exponential_window = _as_bool(self.correct_exponential_window, "correct_exponential_window")
         if not self.created_with:
-            from . import __version__
-
-            self.created_with = f"modalnb {__version__}"
+            self.created_with = f"modalnb {package_version()}"
 
     # --- serialisation -------------------------------------------------------------
     def to_dict(self) -> dict[str, Any]:
@@ -184,6 +203,23 @@ class Recipe:
         """Keyword arguments of :func:`modalnb.fit_modes` that this recipe fixes."""
         return {"band": self.band, "window": self.window, "n_modes": self.n_modes,
                 "add_modes": list(self.add_modes) or None, "drop_modes": list(self.drop_modes) or None}
+
+
+def recipe_for(records: xr.Dataset, recipe: Recipe | None = None, **changes: Any) -> Recipe:
+    """A recipe bound to `records` (their checksum), with `changes` applied.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from modalnb import records_from_arrays
+    >>> ds = records_from_arrays(np.zeros((1, 64)), 256.0)
+    >>> recipe_for(ds, band=(1.0, 100.0)).records_checksum.startswith("sha256:")
+    True
+    """
+    from .records import records_checksum
+
+    base = recipe if recipe is not None else Recipe()
+    return replace(base, records_checksum=records_checksum(records), **changes)
 
 
 def _as_bool(value: Any, name: str) -> bool:

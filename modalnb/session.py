@@ -7,10 +7,11 @@ updates the recipe, refits, autosaves the recipe atomically beside the data and 
 views through plain callbacks (:meth:`Analysis.subscribe`). A refit that fails keeps the
 previous recipe and result and stores a one-line message in :attr:`Analysis.error`.
 
-A full fit is exactly ``run_recipe(records, recipe)`` of the current recipe, so a saved
-recipe replays headlessly (``modalnb fit --recipe``, :func:`modalnb.pipeline.run_recipe`)
-to the same table. A window change alone uses the estimator's fast refit (a preview,
-:attr:`Analysis.preview`); exports always come from a full fit.
+A full fit is ``ModeFit.from_recipe(recipe).fit(records)`` of the current recipe, the
+path of :func:`modalnb.run_recipe`, so a saved recipe replays headlessly (``modalnb fit
+--recipe``) to the same table. A window change alone uses the estimator's fast refit (a
+preview, :attr:`Analysis.preview`; the same variables); exports always come from a full
+fit.
 
 Nothing here imports ipywidgets or plotly; :meth:`Analysis.export` imports the report
 writer (which uses plotly) only when called.
@@ -30,8 +31,8 @@ import xarray as xr
 
 from ._errors import ModalnbError
 from .estimate import mac_matrix
-from .pipeline import finish_result, fit_inputs, fit_recipe, recipe_checks, recipe_for
-from .recipe import Recipe, RecipeError, load_recipe, save_recipe
+from .fitting import ModeFit
+from .recipe import Recipe, RecipeError, load_recipe, recipe_for, save_recipe
 from .records import get_sample_rate, records_checksum, validate_records
 
 __all__ = ["Analysis", "default_recipe_path"]
@@ -76,7 +77,8 @@ class Analysis:
     recipe : Recipe
         The choices behind :attr:`result` (after a failed refit, still the last good one).
     result, checks : xarray.Dataset or None
-        Output of :func:`modalnb.pipeline.run_recipe` for :attr:`recipe`.
+        Output of :func:`modalnb.run_recipe` for :attr:`recipe` (after a window-only
+        change, of the fast refit: see :attr:`preview`).
     error : str or None
         One-line message of the last failed refit (None after a good one).
     warning : str or None
@@ -113,10 +115,8 @@ class Analysis:
         self._listeners: list[Listener] = []
         self._spectrum: tuple[tuple[int, ...], np.ndarray, np.ndarray] | None = None
         self._model_cache: tuple[tuple[int, int], Any] | None = None
-        self._xcheck_cache: tuple[xr.Dataset, xr.Dataset] | None = None
-        self._estimator: Any = None
+        self._estimator: ModeFit | None = None
         self._estimator_key: Any = None
-        self._checks_cache: tuple[Any, xr.Dataset] | None = None
         #: True when :attr:`result` came from the fast refit (see :meth:`_fit`).
         self.preview = False
         checksum = records_checksum(records)
@@ -226,7 +226,8 @@ class Analysis:
         return self._edit_modes(frequency_hz, "drop_modes", "add_modes")
 
     def _edit_modes(self, value: Any, into: str, out_of: str) -> bool:
-        """Put the frequency `value` into one recipe list, removing it (within 5 %) from the other."""
+        """Put the frequency `value` into one recipe list, removing it (within 5 %, the
+        engine's ``drop_modes`` tolerance) from the other."""
         f = self._frequency(value)
         if f is None:
             return False
@@ -299,26 +300,24 @@ class Analysis:
         return True
 
     def _fit(self, recipe: Recipe, *, full: bool) -> tuple[xr.Dataset, xr.Dataset, bool]:
-        """:func:`modalnb.pipeline.run_recipe`, keeping the hit checks and the estimator.
+        """The fit of :func:`modalnb.run_recipe` (``ModeFit.from_recipe``), keeping the estimator.
 
         A change of the window alone uses the estimator's fast refit from the poles already
         found (``ModeFit.refit``): a *preview*, which :meth:`export` and :meth:`refit`
-        replace by a full fit, so files always equal a replay of the recipe. A preview
-        skips the cross-checks (:meth:`cross_checks` computes them on demand).
+        replace by a full fit, so files always equal a replay of the recipe.
         """
-        hits_key = (recipe.hit_overrides, recipe.check_thresholds)
-        if self._checks_cache is None or self._checks_cache[0] != hits_key:
-            self._checks_cache = (hits_key, recipe_checks(self.records, recipe))
-        checks = self._checks_cache[1]
         key = replace(recipe, window=None)  # everything but the window
-        preview = (not full and recipe.window is not None and self._estimator is not None
+        est = self._estimator
+        preview = (not full and recipe.window is not None and est is not None
                    and self._estimator_key == key)
         if preview:
-            result = finish_result(self._estimator.refit(window=recipe.window), recipe, checks)
+            assert est is not None
+            result = est.refit(window=recipe.window)
         else:
-            result, self._estimator = fit_recipe(self.records, recipe, checks)
-            self._estimator_key = key
-        return result, checks, preview
+            est = ModeFit.from_recipe(recipe).fit(self.records)
+            self._estimator, self._estimator_key = est, key
+            result = est.result_
+        return result, est.hit_checks_, preview
 
     # --- files ---------------------------------------------------------------------
     def save_recipe(self, path: str | os.PathLike[str] | None = None) -> Path:
@@ -463,20 +462,11 @@ class Analysis:
         return amp * np.exp(1j * ph)
 
     def cross_checks(self) -> xr.Dataset | None:
-        """The result with the damping cross-checks beside each mode (computed once per result).
+        """The result, which holds the damping cross-checks beside each mode (``xcheck_*``).
 
         None while there is no result. See :func:`modalnb.estimate.cross_checks`.
         """
-        if self.result is None:
-            return None
-        if "xcheck_note" in self.result:
-            return self.result
-        if self._xcheck_cache is None or self._xcheck_cache[0] is not self.result:
-            from .estimate import with_cross_checks
-
-            fit_records, _ = fit_inputs(self.records, self.recipe, self.checks)
-            self._xcheck_cache = (self.result, with_cross_checks(fit_records, self.result))
-        return self._xcheck_cache[1]
+        return self.result
 
     def mac_modes(self) -> np.ndarray:
         """MAC matrix between the result's modes (Allemang & Brown 1982)."""

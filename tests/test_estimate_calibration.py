@@ -6,7 +6,7 @@ import numpy as np
 from scipy.integrate import solve_ivp
 from scipy.linalg import eigh
 
-from modalnb.estimate import fit_modes
+from modalnb import fit_modes
 from modalnb.records import records_from_arrays
 from modalnb.synth import add_noise, free_decay
 

@@ -12,7 +12,7 @@ import pytest
 from scipy.integrate import solve_ivp
 from scipy.linalg import eig
 
-from modalnb.estimate import fit_modes, mac
+from modalnb import fit_modes, mac
 from modalnb.records import records_from_arrays
 
 FS = 2048.0

@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
+from modalnb import ModeFit, fit_modes
 from modalnb._errors import EstimationError
-from modalnb.estimate import ModeFit, fit_modes
 from modalnb.records import records_from_arrays
 from modalnb.synth import add_noise, free_decay
 
@@ -186,8 +186,8 @@ def test_cross_checks_on_the_demo_multimode_records():
     # demo truth (demo_truth.json, the FE model's modal damping): on a four-mode record with
     # a strong high mode right after the hit, each cross-check lands within 5 % of the true
     # damping ratio once the band-pass filter's edge ringing is cut off
+    from modalnb import fit_modes
     from modalnb.demo import load_demo, load_demo_truth
-    from modalnb.estimate import fit_modes
 
     res = fit_modes(load_demo())
     truth = [m["damping_ratio"] for m in load_demo_truth()["modes"]]
@@ -201,8 +201,8 @@ def test_stabilisation_chart_marks_the_true_modes_stable():
     # demo truth (demo_truth.json, FE model): the poles the chart calls stable (1 % in f_n,
     # 5 % in zeta, energy above the candidate limit) gather at the four true modes; noise
     # poles of the over-specified orders are mostly not marked
+    from modalnb import ModeFit
     from modalnb.demo import load_demo, load_demo_truth
-    from modalnb.estimate import ModeFit
 
     st = ModeFit().fit(load_demo()).stabilisation_
     f_true = np.array([m["frequency_hz"] for m in load_demo_truth()["modes"]])

@@ -74,8 +74,8 @@ def test_conversions_formulas():
 def test_accept_mapping_overrides_only_the_hits_it_names():
     # the demo truth (demo_truth.json): hit 4 is a double hit, hit 6 clips; both rejected by
     # the default checks. A mapping naming hit 4 accepts it and leaves hit 6 rejected.
+    from modalnb import fit_modes
     from modalnb.demo import load_demo, load_demo_truth
-    from modalnb.estimate import fit_modes
     from modalnb.recipe import Recipe
 
     truth = load_demo_truth()
@@ -85,9 +85,10 @@ def test_accept_mapping_overrides_only_the_hits_it_names():
     acc = dict(zip(res["hit"].values.tolist(), res["hit_accepted"].values.tolist(), strict=True))
     assert acc[dbl] is True and acc[clip] is False
     assert sum(acc.values()) == ds.sizes["hit"] - 1
-    # the table carries the recipe that replays the call: every decision an override
+    # the table carries the recipe that replays the call: the caller's decision an override,
+    # the other hits left to the same hit checks
     rec = Recipe.from_json(res.attrs["recipe"])
-    assert rec.hit_overrides == acc and rec.band == (20.0, 300.0)
+    assert rec.hit_overrides == {dbl: True} and rec.band == (20.0, 300.0)
     # the default window then starts after the double hit's second tap (truth: delay_s),
     # so only free decay is fitted: exactly the two true modes in the band, near their values
     assert res.attrs["window"][0] > truth["double_hit"]["delay_s"]

@@ -1,4 +1,13 @@
-"""`fit_modes` and the `ModeFit` estimator: records in, modal table out."""
+"""The engine's estimator: a record set and explicit hit decisions in, modal table out.
+
+:class:`SharedPoleFit` is the estimation engine. It never runs hit checks and knows
+nothing of recipes: the caller says which hits to use (``accept``). Users call the layer
+above it instead:
+
+* :func:`modalnb.fit_modes`: one scripted fit (hit checks, engine, cross-checks, recipe);
+* :class:`modalnb.ModeFit`: the same table, kept for repeated refits (widgets, sliders);
+* :func:`modalnb.run_recipe`: reproducible replay of a saved recipe (the CLI's path).
+"""
 
 from __future__ import annotations
 
@@ -12,22 +21,47 @@ import numpy as np
 import xarray as xr
 
 from .._errors import EstimationError
+from .._noise import MIN_NOISE_SAMPLES, dead_channels, noise_end, noise_sigma
 from .._pulse import contact_end, pulse_bounds
-from .._utils import frequency_list
-from ..records import get_sample_rate, has_force, validate_records
+from .._utils import check_band, default_band, frequency_list
+from ..records import get_sample_rate, has_force, records_checksum, validate_records
 from ._basis import is_near_critical, pole_of, residues_from_coefficients
-from ._core import ASKED_TOL, CoreResult, compress, fit_core, significance_threshold
+from ._convert import modal_conversions
+from ._core import ASKED_TOL, CoreResult, compress, fit_core
+from ._significance import significance_threshold
 from ._varpro import Problem, levenberg_marquardt, natural_with_cov
 
-#: Least pre-trigger samples per hit for a noise estimate (common practice).
-MIN_NOISE_SAMPLES = 32
+#: Fewest window samples: a pencil needs a Hankel matrix of several rows and columns per
+#: mode, and a covariance needs residual degrees of freedom (common practice).
+MIN_WINDOW_SAMPLES = 16
+
+#: A mode to drop is the fitted mode nearest the frequency given, within 5 % of it or
+#: 1 Hz, whichever is larger: a user names it from a table or chart, and 1 Hz is the
+#: frequency resolution 1/T of a one-second record, below which low modes cannot be told
+#: apart by eye (common practice).
+DROP_TOL = 0.05
+DROP_FLOOR_HZ = 1.0
+
+#: A damping ratio within 0.02 of 1 (or two standard uncertainties, if more) is
+#: reported as critical: the repeated-pole basis is used there (common practice).
+CRITICAL_TOL = 0.02
+
+#: Fewer oscillation cycles than this in the window make the estimates uncertain (a
+#: warning, common practice).
+MIN_CYCLES = 3.0
+
+#: Samples kept after the pulse end for the force spectrum integral (the pulse's falling
+#: edge reaches zero a sample or two after the 2 % level of ``pulse_bounds``).
+FORCE_TAIL_SAMPLES = 2
+
+#: Status notes that make a mode's uncertainty unusable (the status does not start "ok").
+_BAD_NOTES = ("covariance", "poorly", "all residues")
 
 
 @dataclass
 class _Prepared:
     hits: np.ndarray  # all hit labels
     accepted: np.ndarray  # bool per hit
-    reasons: list[str]
     acc_idx: np.ndarray
     channels: np.ndarray
     live: np.ndarray  # bool per channel (not dead)
@@ -41,41 +75,71 @@ class _Prepared:
     tau: float | None
 
 
-def _accept_decisions(records: xr.Dataset, accept: Any) -> tuple[np.ndarray, list[str]]:
+def _accept_decisions(records: xr.Dataset, accept: Any) -> np.ndarray:
+    """One bool per hit from the caller's decisions (the engine runs no hit checks)."""
     hits = np.asarray(records["hit"].values)
-    if isinstance(accept, Mapping) and set(hits.tolist()) <= set(accept):
-        # every hit decided by the caller (the pipeline's case): no checks needed
-        acc = np.array([bool(accept[h]) for h in hits.tolist()])
-    elif accept is None or isinstance(accept, Mapping):
-        from ..checks import check_hits
-
-        chk = check_hits(records)
-        acc = np.asarray(chk["accepted"].values, bool)
-        reasons = [str(r) for r in np.asarray(chk["reason"].values).tolist()]
-        if accept is None:
-            return acc, reasons
-        # a mapping overrides the automatic decisions of the hits it names
-        for key, val in accept.items():
-            where = np.nonzero(hits == key)[0]
-            if where.size == 0:
-                raise EstimationError(
-                    f"`accept` names hit {key!r}, which is not in the records (hits "
-                    f"{hits.tolist()})."
-                )
-            i = int(where[0])
-            if bool(val) != acc[i] or not reasons[i]:
-                reasons[i] = "accepted (by the caller)" if val else "rejected (by the caller)"
-            acc[i] = bool(val)
-        return acc, reasons
-    else:
-        acc = np.asarray(list(accept) if not isinstance(accept, np.ndarray) else accept)
-        if acc.shape != hits.shape or acc.dtype.kind not in "bi":
+    if accept is None:
+        return np.ones(hits.size, bool)
+    if isinstance(accept, Mapping):
+        labels = hits.tolist()
+        unknown = [k for k in accept if k not in labels]
+        if unknown:
             raise EstimationError(
-                f"`accept` must be a mapping hit -> bool or {hits.size} booleans, got {accept!r}."
+                f"`accept` names hit {unknown[0]!r}, which is not in the records (hits {labels})."
             )
-        acc = acc.astype(bool)
-    reasons = ["accepted (by the caller)" if a else "rejected (by the caller)" for a in acc]
-    return acc, reasons
+        missing = [h for h in labels if h not in accept]
+        if missing:
+            raise EstimationError(
+                f"`accept` decides no hit {missing[0]!r}: the engine needs a decision for every "
+                "hit. Hint: use modalnb.fit_modes or modalnb.ModeFit, which run the hit checks "
+                "for the hits you leave out."
+            )
+        return np.array([bool(accept[h]) for h in labels])
+    acc = np.asarray(list(accept) if not isinstance(accept, np.ndarray) else accept)
+    if acc.shape != hits.shape or acc.dtype.kind not in "bi":
+        raise EstimationError(
+            f"`accept` must be a mapping hit -> bool or {hits.size} booleans, got {accept!r}."
+        )
+    return acc.astype(bool)
+
+
+def _window_indices(t: np.ndarray, fs: float, window: Any, i_default: int) -> tuple[int, int]:
+    if window is None:
+        i0, i1 = i_default, t.size
+    else:
+        try:
+            w0, w1 = (float(v) for v in window)
+        except (TypeError, ValueError):
+            raise EstimationError(f"`window` must be (t0, t1) in seconds, got {window!r}.") from None
+        if not (w1 > w0):
+            raise EstimationError(f"`window` must have t0 < t1, got {window!r}.")
+        # a sample within a nanosample of an edge belongs to the window (rounding of times)
+        i0 = int(np.searchsorted(t, w0 - 1e-9 / fs))
+        i1 = int(np.searchsorted(t, w1 + 1e-9 / fs, side="right"))
+    if i1 - i0 < MIN_WINDOW_SAMPLES:
+        raise EstimationError(
+            f"window {t[min(i0, t.size - 1)]:.6g}..{t[max(i1 - 1, 0)]:.6g} s holds {max(i1 - i0, 0)} "
+            f"samples; at least {MIN_WINDOW_SAMPLES} are needed. Hint: widen the window."
+        )
+    return i0, i1
+
+
+def _noise_weights(
+    resp: np.ndarray, acc_idx: np.ndarray, t: np.ndarray, pulse_start: int | None,
+    data: np.ndarray, live: np.ndarray,
+) -> tuple[np.ndarray, str]:
+    """Channel weights 1/noise from the pre-trigger samples (:mod:`modalnb._noise`), or
+    1/RMS of the window when there are too few of them."""
+    pre_end = noise_end(t, pulse_start)
+    weight = np.zeros(live.size)
+    if pre_end >= MIN_NOISE_SAMPLES:
+        sig = noise_sigma(resp[acc_idx][:, :, :pre_end], axis=(0, 2))
+        if np.all(sig[live] > 0):
+            weight[live] = 1.0 / sig[live]
+            return weight, "pre-trigger samples"
+    rms = noise_sigma(data, axis=(0, 2))
+    weight[live] = 1.0 / rms[live]
+    return weight, "window RMS (no pre-trigger noise)"
 
 
 def _prepare(records: xr.Dataset, window: Any, accept: Any) -> _Prepared:
@@ -83,11 +147,11 @@ def _prepare(records: xr.Dataset, window: Any, accept: Any) -> _Prepared:
     fs = get_sample_rate(records)
     t = np.asarray(records["time"].values, float)
     hits = np.asarray(records["hit"].values)
-    acc, reasons = _accept_decisions(records, accept)
+    acc = _accept_decisions(records, accept)
     if not acc.any():
         raise EstimationError(
-            f"all {hits.size} hits are rejected ({reasons[0]}); nothing to fit. Hint: pass "
-            "accept= to override the hit checks, or record new hits."
+            f"all {hits.size} hits are rejected; nothing to fit. Hint: accept at least one "
+            "hit, or record new hits."
         )
     acc_idx = np.nonzero(acc)[0]
     resp = np.asarray(records["response"].values, float)
@@ -102,22 +166,7 @@ def _prepare(records: xr.Dataset, window: Any, accept: Any) -> _Prepared:
     else:
         nonneg = np.nonzero(t >= 0)[0]
         i_default = int(nonneg[0]) if nonneg.size else 0
-    if window is None:
-        i0, i1 = i_default, t.size
-    else:
-        try:
-            w0, w1 = (float(v) for v in window)
-        except (TypeError, ValueError):
-            raise EstimationError(f"`window` must be (t0, t1) in seconds, got {window!r}.") from None
-        if not (w1 > w0):
-            raise EstimationError(f"`window` must have t0 < t1, got {window!r}.")
-        i0 = int(np.searchsorted(t, w0 - 1e-9 / fs))
-        i1 = int(np.searchsorted(t, w1 + 1e-9 / fs, side="right"))
-    if i1 - i0 < 16:
-        raise EstimationError(
-            f"window {t[min(i0, t.size - 1)]:.6g}..{t[max(i1 - 1, 0)]:.6g} s holds {max(i1 - i0, 0)} "
-            "samples; at least 16 are needed. Hint: widen the window."
-        )
+    i0, i1 = _window_indices(t, fs, window, i_default)
     t_win = t[i0:i1]
     data = resp[acc_idx][:, :, i0:i1].copy()
     tau = records.attrs.get("exponential_window_tau_s")
@@ -127,31 +176,16 @@ def _prepare(records: xr.Dataset, window: Any, accept: Any) -> _Prepared:
         gain = np.where(t_win >= 0, np.exp(np.clip(t_win, 0, None) / tau), 1.0)
         data *= gain
     channels = np.asarray(records["channel"].values)
-    live = np.ptp(data, axis=(0, 2)) > 0
+    live = ~dead_channels(data)
     if not live.any():
         raise EstimationError(
             "every channel is constant (dead) in the window for the accepted hits. Hint: check "
             "the sensors or the window."
         )
-    # noise level per channel from the pre-trigger samples where there are enough
-    pre_end = np.searchsorted(t, 0.0)
-    if pulse_start is not None:
-        pre_end = min(pre_end, max(pulse_start - 2, 0))
-    noise_from = "window RMS (no pre-trigger noise)"
-    weight = np.zeros(channels.size)
-    if pre_end >= MIN_NOISE_SAMPLES:
-        pre = resp[acc_idx][:, :, :pre_end]
-        pre = pre - pre.mean(axis=2, keepdims=True)
-        sig = np.sqrt(np.mean(pre**2, axis=(0, 2)))
-        if np.all(sig[live] > 0):
-            weight[live] = 1.0 / sig[live]
-            noise_from = "pre-trigger samples"
-    if noise_from != "pre-trigger samples":
-        rms = np.sqrt(np.mean((data - data.mean(axis=2, keepdims=True)) ** 2, axis=(0, 2)))
-        weight[live] = 1.0 / rms[live]
+    weight, noise_from = _noise_weights(resp, acc_idx, t, pulse_start, data, live)
     return _Prepared(
-        hits=hits, accepted=acc, reasons=reasons, acc_idx=acc_idx, channels=channels, live=live,
-        t_win=t_win, i0=i0, i1=i1, data=data, weight=weight, noise_from=noise_from, fs=fs, tau=tau,
+        hits=hits, accepted=acc, acc_idx=acc_idx, channels=channels, live=live, t_win=t_win,
+        i0=i0, i1=i1, data=data, weight=weight, noise_from=noise_from, fs=fs, tau=tau,
     )
 
 
@@ -167,7 +201,7 @@ def _force_spectrum(records: xr.Dataset, prep: _Prepared, lam: complex) -> np.nd
     out = np.empty(prep.acc_idx.size, complex)
     for i, h in enumerate(prep.acc_idx):
         s, _, e = pulse_bounds(force[h], t)
-        e = min(e + 2, t.size)
+        e = min(e + FORCE_TAIL_SAMPLES, t.size)
         out[i] = np.sum(force[h, s:e] * np.exp(-lam * t[s:e])) / prep.fs
     return out
 
@@ -214,19 +248,160 @@ def _blas_limit(n: int | None) -> Iterator[None]:
         yield
 
 
-class ModeFit:
-    """Shared-pole modal estimator for a record set (scikit-learn style).
+# ---------------------------------------------------------------- table steps
+def _residue_fit(prep: _Prepared, core: CoreResult) -> tuple[np.ndarray, np.ndarray]:
+    """Linear coefficients of every signal (unweighted data, least squares at the final
+    poles) and R^2 per channel."""
+    n_hit_acc, n_ch, n = prep.data.shape
+    phi = core.prob.basis(core.x)
+    flat = prep.data.transpose(2, 0, 1).reshape(n, -1)
+    coef, *_ = np.linalg.lstsq(phi, flat, rcond=None)
+    fitted = (phi @ coef).reshape(n, n_hit_acc, n_ch)
+    resid = flat.reshape(n, n_hit_acc, n_ch) - fitted
+    dm = flat.reshape(n, n_hit_acc, n_ch)
+    dm = dm - dm.mean(axis=0, keepdims=True)
+    tss = np.sum(dm**2, axis=(0, 1))
+    rss_c = np.sum(resid**2, axis=(0, 1))
+    fit_r2 = np.where(tss > 0, 1.0 - rss_c / np.where(tss > 0, tss, 1.0), 0.0)
+    return coef, fit_r2
 
-    Parameters are those of :func:`fit_modes`. After :meth:`fit`:
 
-    * ``result_``: the modal table (see :func:`fit_modes`);
-    * ``minimizer_result_``: the lmfit ``MinimizerResult`` of the final refinement
-      (``fit_report()`` works; parameters ``m<k>_sigma``, ``m<k>_u`` are the packed
-      poles of all fitted modes, in the order of ``fitted_modes_``);
-    * ``stabilisation_``: poles versus order of the pencils, for a stabilisation chart.
+def _select_modes(core: CoreResult, band: tuple[float, float], dropped: Sequence[float],
+                  n_modes: int | None) -> list[int]:
+    """Indices of the fitted modes the table reports: in the band, not dropped, the
+    `n_modes` strongest; sorted by natural frequency."""
+    sel = [k for k in range(core.sigma.size) if band[0] <= core.fn[k] <= band[1]]
+    if not sel:
+        raise EstimationError(
+            f"no mode found in the band {band[0]:g}..{band[1]:g} Hz (modes fitted at "
+            f"{', '.join(f'{f:.4g}' for f in core.fn)} Hz). Hint: widen the band."
+        )
+    for f in dropped:
+        # the user leaves the fitted mode nearest f out of the table (it stays in the model)
+        near = min(sel, key=lambda k: abs(core.fn[k] - f)) if sel else None
+        if near is None or abs(core.fn[near] - f) > max(DROP_TOL * f, DROP_FLOOR_HZ):
+            raise EstimationError(
+                f"drop_modes: no fitted mode near {f:g} Hz (within 5 %; modes at "
+                f"{', '.join(f'{core.fn[k]:.4g}' for k in sorted(sel, key=lambda k: core.fn[k]))} Hz). "
+                f"Hint: remove {f:g} from the dropped modes."
+            )
+        sel.remove(near)
+    if not sel:
+        raise EstimationError("every mode in the band was dropped (drop_modes). Hint: "
+                              "keep at least one.")
+    if n_modes is not None:
+        sel = sorted(sel, key=lambda k: -core.significance[k])[: int(n_modes)]
+    return sorted(sel, key=lambda k: core.fn[k])
 
-    :meth:`refit` re-estimates after a change of window or hits starting from the poles
-    already found (no pencil), which is what an interactive window slider needs.
+
+def _regime(z: float, zstd: float) -> str:
+    if abs(z - 1.0) <= max(CRITICAL_TOL, 2 * zstd if np.isfinite(zstd) else 0.0):
+        return "critical"
+    return "underdamped" if z < 1 else "overdamped"
+
+
+def _record_residues(core: CoreResult, coef: np.ndarray, k: int, t_w0: float,
+                     shape: tuple[int, int]) -> tuple[np.ndarray, complex]:
+    """Residues (accepted hit, channel) of mode `k` with t = 0 the record origin, and its pole."""
+    sigma, u = float(core.sigma[k]), float(core.u[k])
+    a = coef[2 * k].reshape(shape)
+    b = coef[2 * k + 1].reshape(shape)
+    if is_near_critical(sigma, u):
+        # (a + b t') e^{-sigma t'}, t' = t - t_w0: move the origin to t = 0
+        g = np.exp(sigma * t_w0)
+        a0, b0 = (a - b * t_w0) * g, b * g
+        return residues_from_coefficients(a0, b0, sigma, u), complex(-sigma, 0.0)
+    lam = pole_of(sigma, u)
+    return residues_from_coefficients(a, b, sigma, u) * np.exp(-lam * t_w0), lam
+
+
+def _force_normalise(records: xr.Dataset, prep: _Prepared, r: np.ndarray, lam: complex,
+                     use_force: bool, notes: list[str]) -> tuple[np.ndarray, np.ndarray]:
+    """Channel residues (least squares over hits) and per-hit residues, per unit force."""
+    if not use_force:
+        return r.mean(axis=0), r
+    ftil = _force_spectrum(records, prep, lam)
+    denom = np.sum(np.abs(ftil) ** 2)
+    if denom > 0:
+        ch = np.sum(np.conj(ftil)[:, None] * r, axis=0) / denom
+        return ch, r / np.where(ftil != 0, ftil, 1.0)[:, None]
+    notes.append("force spectrum zero at the pole: residues not force-normalised")
+    return r.mean(axis=0), r
+
+
+def _shape_of(ch: np.ndarray, sign: np.ndarray, notes: list[str]) -> tuple[np.ndarray, np.ndarray]:
+    """Amplitude and phase (deg, in (-180, 180]) normalised to the largest component."""
+    psi = ch * sign
+    ref = int(np.argmax(np.abs(psi)))
+    if abs(psi[ref]) > 0:
+        psin = psi / psi[ref]
+        ph = np.degrees(np.angle(psin))
+        return np.abs(psin), np.where(ph <= -180.0 + 1e-9, 180.0, ph)
+    notes.append("all residues zero: shape undefined (amplitudes 0)")
+    return np.zeros(ch.size), np.zeros(ch.size)
+
+
+def _damping_measures(fn: float, z: float, regime: str) -> dict[str, float]:
+    """The damping measures of the table through :func:`modal_conversions`."""
+    keys = ("damped_frequency_hz", "q_factor", "loss_factor", "log_decrement",
+            "decay_time_constant_s", "decay_rate_db_per_s")
+    try:
+        conv = modal_conversions(fn, z)
+    except EstimationError:  # a non-positive or undefined pole: no measures
+        return dict.fromkeys(keys, float("nan"))
+    out = {key: conv[key] for key in keys}
+    if regime != "underdamped":
+        out["damped_frequency_hz"] = out["log_decrement"] = float("nan")
+    return out
+
+
+def _status(notes: list[str]) -> str:
+    if any(s.startswith(_BAD_NOTES) for s in notes):
+        return "; ".join(notes)
+    return "; ".join(["ok", *notes])
+
+
+_UNITS = {"frequency_hz": "Hz", "frequency_hz_std": "Hz", "frequency_hz_scatter": "Hz",
+          "damped_frequency_hz": "Hz", "decay_time_constant_s": "s",
+          "decay_rate_db_per_s": "dB/s"}
+
+_MODE_COLUMNS = ("frequency_hz", "damping_ratio", "frequency_hz_std", "damping_ratio_std",
+                 "frequency_hz_scatter", "damping_ratio_scatter", "damped_frequency_hz",
+                 "q_factor", "loss_factor", "log_decrement", "decay_time_constant_s",
+                 "decay_rate_db_per_s", "mode_energy")
+
+
+class SharedPoleFit:
+    """The estimation engine: shared-pole modal fit of a record set with given hit decisions.
+
+    This is the engine under :func:`modalnb.fit_modes` and :class:`modalnb.ModeFit`; it
+    runs no hit checks (``accept`` says which hits to use; None uses every hit) and
+    attaches neither hit reasons, cross-checks nor a recipe. Use it directly for
+    benchmarks and tests of the estimator itself; users want :class:`modalnb.ModeFit`.
+
+    Parameters
+    ----------
+    band, window, n_modes, max_order, scatter, blas_threads, add_modes, drop_modes
+        As in :func:`modalnb.fit_modes`.
+    accept : mapping or sequence of bool, optional
+        A decision for every hit: a mapping ``{hit: bool}`` naming every hit, or one bool
+        per hit. None: every hit is used.
+
+    Attributes
+    ----------
+    result_ : xarray.Dataset
+        The engine's modal table (the variables of :func:`modalnb.fit_modes` but the
+        hit-check and cross-check ones).
+    window_ : (float, float)
+        Times (s) of the first and last sample the last fit or refit used.
+    accept_ : ndarray of bool
+        The hit decisions the last fit or refit used.
+    minimizer_result_ : lmfit.MinimizerResult or None
+        Result of the final lmfit refinement (``fit_report()`` works; parameters
+        ``m<k>_sigma``, ``m<k>_u`` are the packed poles of every fitted mode, including
+        those outside the band or dropped from the table).
+    stabilisation_ : xarray.Dataset
+        Poles versus order of the pencils, for a stabilisation chart.
 
     Examples
     --------
@@ -235,9 +410,9 @@ class ModeFit:
     >>> from modalnb.synth import free_decay
     >>> t = np.arange(2048) / 2048.0
     >>> x = free_decay(t, 50.0, 0.01) + 1e-4 * np.random.default_rng(0).standard_normal(2048)
-    >>> fit = ModeFit(accept=[True]).fit(records_from_arrays(x, 2048.0))
-    >>> round(float(fit.result_["frequency_hz"][0]), 2)
-    50.0
+    >>> eng = SharedPoleFit(accept=[True]).fit(records_from_arrays(x, 2048.0))
+    >>> round(float(eng.result_["frequency_hz"][0]), 2), eng.window_
+    (50.0, (0.0, 0.99951171875))
     """
 
     def __init__(
@@ -253,19 +428,19 @@ class ModeFit:
         add_modes: Sequence[float] | None = None,
         drop_modes: Sequence[float] | None = None,
     ):
-        self.blas_threads = blas_threads
-        self.add_modes = add_modes
-        self.drop_modes = drop_modes
         self.band = band
         self.window = window
         self.n_modes = n_modes
         self.accept = accept
         self.max_order = max_order
         self.scatter = scatter
+        self.blas_threads = blas_threads
+        self.add_modes = add_modes
+        self.drop_modes = drop_modes
 
     # ------------------------------------------------------------------ public
-    def fit(self, records: xr.Dataset) -> ModeFit:
-        """Estimate the modes of `records`; returns self."""
+    def fit(self, records: xr.Dataset) -> SharedPoleFit:
+        """Estimate the modes of `records` with the constructor's choices; returns self."""
         self._records = records
         self._run(records, self.window, self.accept, x0=None)
         return self
@@ -275,55 +450,69 @@ class ModeFit:
         window: tuple[float, float] | None = None,
         accept: Mapping[int, bool] | Sequence[bool] | None = None,
     ) -> xr.Dataset:
-        """Re-estimate after a window (or hit) change, starting from the current poles.
+        """Re-estimate in `window` (None: automatic) starting from the current poles.
 
-        Returns the new ``result_``. Modes that vanish in the new window are dropped.
+        `accept` (None: the decisions of the last fit) changes the hits used. The
+        constructor's parameters are left as they are; the window and decisions used go
+        to ``window_`` and ``accept_``. Returns the new ``result_``; modes that vanish in
+        the new window are dropped.
         """
-        if not hasattr(self, "_x"):
-            raise EstimationError("This ModeFit instance is not fitted yet. Call 'fit' first.")
-        self.window = window
-        if accept is not None:
-            self.accept = accept
-        self._run(self._records, window, self.accept, x0=self._x)
+        self._check_fitted()
+        self._run(self._records, window, self.accept_ if accept is None else accept, x0=self._x)
         return self.result_
 
     def fit_report(self) -> str:
         """lmfit's text report of the final refinement (``lmfit.fit_report``)."""
         import lmfit
 
-        if not hasattr(self, "minimizer_result_"):
-            raise EstimationError("This ModeFit instance is not fitted yet. Call 'fit' first.")
+        self._check_fitted()
         return lmfit.fit_report(self.minimizer_result_)
+
+    def _check_fitted(self) -> None:
+        if not hasattr(self, "result_"):
+            raise EstimationError(
+                f"This {type(self).__name__} instance is not fitted yet. Call 'fit' with the "
+                "records before using this method."
+            )
 
     # ---------------------------------------------------------------- internals
     def _run(self, records: xr.Dataset, window: Any, accept: Any, x0: np.ndarray | None) -> None:
         with _blas_limit(self.blas_threads):
             self._run_unlimited(records, window, accept, x0)
 
+    def _choices(self, fs: float) -> tuple[tuple[float, float], np.ndarray, list[float]]:
+        band = check_band(self.band, fs, error=EstimationError) or default_band(fs)
+        if self.n_modes is not None and (int(self.n_modes) != self.n_modes or self.n_modes < 1):
+            raise EstimationError(f"`n_modes` must be a positive integer, got {self.n_modes!r}.")
+        asked = np.asarray(frequency_list("`add_modes`", self.add_modes, EstimationError))
+        dropped = frequency_list("`drop_modes`", self.drop_modes, EstimationError)
+        return band, asked, dropped
+
     def _run_unlimited(
         self, records: xr.Dataset, window: Any, accept: Any, x0: np.ndarray | None
     ) -> None:
         fs = get_sample_rate(validate_records(records))
-        band = self.band
-        if band is not None:
-            try:
-                f_lo, f_hi = (float(v) for v in band)
-            except (TypeError, ValueError):
-                raise EstimationError(f"`band` must be (fmin, fmax) in Hz, got {band!r}.") from None
-            if not (0 <= f_lo < f_hi):
-                raise EstimationError(f"`band` must satisfy 0 <= fmin < fmax, got {band!r}.")
-        else:
-            f_lo, f_hi = 0.0, 0.45 * fs
-        if self.n_modes is not None and (int(self.n_modes) != self.n_modes or self.n_modes < 1):
-            raise EstimationError(f"`n_modes` must be a positive integer, got {self.n_modes!r}.")
+        band, asked, dropped = self._choices(fs)
         prep = _prepare(records, window, accept)
+        core, weight = self._fit_poles(prep, asked, x0)
+        self._x = core.x
+        self.minimizer_result_ = core.minimizer
+        if core.pencil is not None or not hasattr(self, "stabilisation_"):
+            self.stabilisation_ = _stabilisation(core)
+        self.result_ = self._assemble(records, prep, core, weight, band, window, asked, dropped)
+        self.window_ = (float(prep.t_win[0]), float(prep.t_win[-1]))
+        self.accept_ = prep.accepted.copy()
+
+    def _fit_poles(self, prep: _Prepared, asked: np.ndarray,
+                   x0: np.ndarray | None) -> tuple[CoreResult, np.ndarray]:
+        """Shared poles of the weighted signals; without a pre-trigger noise floor, a first
+        fit, then each channel reweighted by its residual RMS and refined."""
+        fs = prep.fs
         t_rel = prep.t_win - prep.t_win[0]
         y = _stack(prep, prep.weight)
-        f_search = 0.45 * fs
+        f_search = default_band(fs)[1]
         n_live = int(prep.live.sum())
         reweight = prep.noise_from != "pre-trigger samples" and n_live > 1
-        self._asked = asked = np.asarray(frequency_list("`add_modes`", self.add_modes, EstimationError))
-        self._dropped = frequency_list("`drop_modes`", self.drop_modes, EstimationError)
         seeds = asked if x0 is None and asked.size else None
         core = fit_core(y, t_rel, fs, f_max=f_search, x0=x0, max_order=self.max_order,
                         polish=not reweight, seeds_hz=seeds, protect_hz=asked)
@@ -342,17 +531,12 @@ class ModeFit:
                             protect_hz=asked)
             core.pencil = pencil
             prep.noise_from = "residual RMS of a first fit"
-        self._x = core.x
-        self._core = core
-        self._prep = prep
-        self.minimizer_result_ = core.minimizer
-        if core.pencil is not None:
-            self.stabilisation_ = _stabilisation(core)
-        elif not hasattr(self, "stabilisation_"):
-            self.stabilisation_ = _stabilisation(core)
-        self.result_ = self._assemble(records, prep, core, weight, (f_lo, f_hi), window)
+        return core, weight
 
-    def _per_hit_scatter(self, prep: _Prepared, core: CoreResult, weight: np.ndarray):
+    def _per_hit_scatter(
+        self, prep: _Prepared, core: CoreResult, weight: np.ndarray
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """Standard deviation over accepted hits of per-hit pole refits (NaN below 3 hits)."""
         n_hit = prep.acc_idx.size
         m = core.sigma.size
         if not self.scatter or n_hit < 3:
@@ -371,169 +555,109 @@ class ModeFit:
 
     def _assemble(
         self, records: xr.Dataset, prep: _Prepared, core: CoreResult, weight: np.ndarray,
-        band: tuple[float, float], window: Any,
+        band: tuple[float, float], window: Any, asked: np.ndarray, dropped: list[float],
     ) -> xr.Dataset:
-        from .. import __version__
-        from ..records import records_checksum
-
-        fs = prep.fs
-        t_rel = prep.t_win - prep.t_win[0]
-        t_w0 = float(prep.t_win[0])
-        n_hit_acc, n_ch, n = prep.data.shape
-        # residues per signal (unweighted data, least squares at the final poles)
-        phi = core.prob.basis(core.x)
-        flat = prep.data.transpose(2, 0, 1).reshape(n, -1)
-        coef, *_ = np.linalg.lstsq(phi, flat, rcond=None)
-        fitted = (phi @ coef).reshape(n, n_hit_acc, n_ch)
-        resid = flat.reshape(n, n_hit_acc, n_ch) - fitted
-        dm = flat.reshape(n, n_hit_acc, n_ch)
-        dm = dm - dm.mean(axis=0, keepdims=True)
-        tss = np.sum(dm**2, axis=(0, 1))
-        rss_c = np.sum(resid**2, axis=(0, 1))
-        fit_r2 = np.where(tss > 0, 1.0 - rss_c / np.where(tss > 0, tss, 1.0), 0.0)
-        m_all = core.sigma.size
-        energy = core.significance
-        sel = [k for k in range(m_all) if band[0] <= core.fn[k] <= band[1]]
-        if not sel:
-            raise EstimationError(
-                f"no mode found in the band {band[0]:g}..{band[1]:g} Hz (modes fitted at "
-                f"{', '.join(f'{f:.4g}' for f in core.fn)} Hz). Hint: widen the band."
-            )
-        for f in self._dropped:
-            # the user leaves the fitted mode nearest f out of the table (it stays in the model)
-            near = min(sel, key=lambda k: abs(core.fn[k] - f)) if sel else None
-            if near is None or abs(core.fn[near] - f) > max(0.05 * f, 1.0):
-                raise EstimationError(
-                    f"drop_modes: no fitted mode near {f:g} Hz (within 5 %; modes at "
-                    f"{', '.join(f'{core.fn[k]:.4g}' for k in sorted(sel, key=lambda k: core.fn[k]))} Hz). "
-                    f"Hint: remove {f:g} "
-                    "from the dropped modes."
-                )
-            sel.remove(near)
-        if not sel:
-            raise EstimationError("every mode in the band was dropped (drop_modes). Hint: "
-                                  "keep at least one.")
-        if self.n_modes is not None:
-            sel = sorted(sel, key=lambda k: -energy[k])[: int(self.n_modes)]
-        sel = sorted(sel, key=lambda k: core.fn[k])
-        asked = self._asked
-        m = len(sel)
+        """The engine's table: per-mode values, shapes, residues, per-channel fit quality."""
+        n_ch = prep.data.shape[1]
+        coef, fit_r2 = _residue_fit(prep, core)
+        sel = _select_modes(core, band, dropped, self.n_modes)
         scat_f, scat_z = self._per_hit_scatter(prep, core, weight)
         use_force = has_force(records)
         sign = np.ones(n_ch)
         if "direction" in records.coords:
             sign = np.array([-1.0 if str(d).strip().startswith("-") else 1.0
                              for d in records["direction"].values.tolist()])
-        hit_res = np.full((m, prep.hits.size, n_ch), np.nan, complex)
-        ch_res = np.zeros((m, n_ch), complex)
-        shape_amp = np.zeros((m, n_ch))
-        shape_ph = np.zeros((m, n_ch))
-        status = []
-        regime = []
-        cols = {name: np.zeros(m) for name in (
-            "frequency_hz", "damping_ratio", "frequency_hz_std", "damping_ratio_std",
-            "frequency_hz_scatter", "damping_ratio_scatter", "damped_frequency_hz",
-            "q_factor", "loss_factor", "log_decrement", "decay_time_constant_s",
-            "decay_rate_db_per_s", "mode_energy")}
+        m = len(sel)
+        cols = {name: np.zeros(m) for name in _MODE_COLUMNS}
+        per_mode: dict[str, Any] = {
+            "hit_res": np.full((m, prep.hits.size, n_ch), np.nan, complex),
+            "ch_res": np.zeros((m, n_ch), complex), "shape_amp": np.zeros((m, n_ch)),
+            "shape_ph": np.zeros((m, n_ch)), "status": [], "regime": [],
+        }
         for i, k in enumerate(sel):
-            sigma, u = float(core.sigma[k]), float(core.u[k])
-            fn, z = float(core.fn[k]), float(core.zeta[k])
-            fstd, zstd = float(core.fn_std[k]), float(core.zeta_std[k])
-            notes: list[str] = []
-            if abs(z - 1.0) <= max(0.02, 2 * zstd if np.isfinite(zstd) else 0.0):
-                reg = "critical"
-            else:
-                reg = "underdamped" if z < 1 else "overdamped"
-            regime.append(reg)
-            a = coef[2 * k].reshape(n_hit_acc, n_ch)
-            b = coef[2 * k + 1].reshape(n_hit_acc, n_ch)
-            crit = is_near_critical(sigma, u)
-            if crit:
-                # (a + b t') e^{-sigma t'}, t' = t - t_w0: move the origin to t = 0
-                g = np.exp(sigma * t_w0)
-                a0, b0 = (a - b * t_w0) * g, b * g
-                r = residues_from_coefficients(a0, b0, sigma, u)
-                lam = complex(-sigma, 0.0)
-            else:
-                lam = pole_of(sigma, u)
-                r = residues_from_coefficients(a, b, sigma, u) * np.exp(-lam * t_w0)
-            if use_force:
-                ftil = _force_spectrum(records, prep, lam)
-                denom = np.sum(np.abs(ftil) ** 2)
-                if denom > 0:
-                    ch = np.sum(np.conj(ftil)[:, None] * r, axis=0) / denom
-                    per_hit = r / np.where(ftil != 0, ftil, 1.0)[:, None]
-                else:
-                    ch, per_hit = r.mean(axis=0), r
-                    notes.append("force spectrum zero at the pole: residues not force-normalised")
-            else:
-                ch, per_hit = r.mean(axis=0), r
-            hit_res[i][prep.acc_idx] = per_hit
-            ch_res[i] = ch
-            psi = ch * sign
-            ref = int(np.argmax(np.abs(psi)))
-            if abs(psi[ref]) > 0:
-                psin = psi / psi[ref]
-                shape_amp[i] = np.abs(psin)
-                ph = np.degrees(np.angle(psin))
-                ph = np.where(ph <= -180.0 + 1e-9, 180.0, ph)
-                shape_ph[i] = ph
-            else:
-                notes.append("all residues zero: shape undefined (amplitudes 0)")
-            if reg == "underdamped":
-                fd = fn * np.sqrt(1 - z * z)
-                logdec = 2 * np.pi * z / np.sqrt(1 - z * z)
-                cycles = fd * (t_rel[-1] + 1 / fs)
-                if cycles < 3:
-                    notes.append(f"window holds only {cycles:.1f} cycles: estimates uncertain")
-            else:
-                fd = logdec = float("nan")
-                notes.append(f"{reg}: no oscillation, damped_frequency_hz and log_decrement undefined")
-            if not (np.isfinite(fstd) and np.isfinite(zstd)):
-                fstd = fstd if np.isfinite(fstd) else float("nan")
-                notes.append("covariance singular: uncertainties undefined")
-            elif zstd > 0.5 * z:
-                notes.append("poorly determined: damping_ratio_std exceeds half the damping ratio")
-            if asked.size and np.any(np.abs(fn - asked) < ASKED_TOL * asked):
-                notes.append("added by the user (add_modes)")
-                if energy[k] < significance_threshold(core.prob.data_t.shape[1]):
-                    notes.append("below the noise significance: it may not be a mode")
-            if not self.scatter:
-                notes.append("scatter not computed (scatter=False)")
-            elif n_hit_acc < 3:
-                notes.append(f"scatter undefined: {n_hit_acc} accepted hit(s), 3 needed")
-            status.append("; ".join(["ok", *notes]) if not any(
-                s.startswith(("covariance", "poorly", "all residues")) for s in notes
-            ) else "; ".join(notes))
-            sig_d = z * 2 * np.pi * fn
-            vals = dict(
-                frequency_hz=fn, damping_ratio=z, frequency_hz_std=fstd, damping_ratio_std=zstd,
-                frequency_hz_scatter=scat_f[k], damping_ratio_scatter=scat_z[k],
-                damped_frequency_hz=fd, q_factor=1 / (2 * z), loss_factor=2 * z,
-                log_decrement=logdec, decay_time_constant_s=1 / sig_d,
-                decay_rate_db_per_s=20 / np.log(10) * sig_d, mode_energy=energy[k],
-            )
-            for key, v in vals.items():
-                cols[key][i] = v
+            self._mode_row(i, k, records, prep, core, coef, asked, use_force, sign,
+                           (scat_f, scat_z), cols, per_mode)
+        ds = self._dataset(records, prep, cols, per_mode, fit_r2, use_force)
+        settings = self._settings(prep, core, band, window, asked, dropped, cols)
+        ds.attrs = {
+            "settings": json.dumps(settings),
+            "band": settings["band"], "window": settings["window"],
+            "n_modes": -1 if self.n_modes is None else int(self.n_modes),
+            "exponential_window_tau_s": -1.0 if prep.tau is None else prep.tau,
+            "input_checksum": records_checksum(records),
+        }
+        return ds
+
+    def _mode_row(
+        self, i: int, k: int, records: xr.Dataset, prep: _Prepared, core: CoreResult,
+        coef: np.ndarray, asked: np.ndarray, use_force: bool, sign: np.ndarray,
+        scatter: tuple[np.ndarray, np.ndarray], cols: dict[str, np.ndarray],
+        per_mode: dict[str, Any],
+    ) -> None:
+        """Fill row `i` of the table with fitted mode `k`: values, residues, shape, status."""
+        n_hit_acc, n_ch, _ = prep.data.shape
+        t_rel = prep.t_win - prep.t_win[0]
+        fn, z = float(core.fn[k]), float(core.zeta[k])
+        fstd, zstd = float(core.fn_std[k]), float(core.zeta_std[k])
+        notes: list[str] = []
+        reg = _regime(z, zstd)
+        per_mode["regime"].append(reg)
+        r, lam = _record_residues(core, coef, k, float(prep.t_win[0]), (n_hit_acc, n_ch))
+        ch, per_hit = _force_normalise(records, prep, r, lam, use_force, notes)
+        per_mode["hit_res"][i][prep.acc_idx] = per_hit
+        per_mode["ch_res"][i] = ch
+        per_mode["shape_amp"][i], per_mode["shape_ph"][i] = _shape_of(ch, sign, notes)
+        measures = _damping_measures(fn, z, reg)
+        if reg == "underdamped":
+            cycles = measures["damped_frequency_hz"] * (t_rel[-1] + 1 / prep.fs)
+            if cycles < MIN_CYCLES:
+                notes.append(f"window holds only {cycles:.1f} cycles: estimates uncertain")
+        else:
+            notes.append(f"{reg}: no oscillation, damped_frequency_hz and log_decrement undefined")
+        if not (np.isfinite(fstd) and np.isfinite(zstd)):
+            fstd = fstd if np.isfinite(fstd) else float("nan")
+            notes.append("covariance singular: uncertainties undefined")
+        elif zstd > 0.5 * z:
+            notes.append("poorly determined: damping_ratio_std exceeds half the damping ratio")
+        if asked.size and np.any(np.abs(fn - asked) < ASKED_TOL * asked):
+            notes.append("added by the user (add_modes)")
+            if core.significance[k] < significance_threshold(core.prob.data_t.shape[1]):
+                notes.append("below the noise significance: it may not be a mode")
+        if not self.scatter:
+            notes.append("scatter not computed (scatter=False)")
+        elif n_hit_acc < 3:
+            notes.append(f"scatter undefined: {n_hit_acc} accepted hit(s), 3 needed")
+        per_mode["status"].append(_status(notes))
+        vals = dict(
+            frequency_hz=fn, damping_ratio=z, frequency_hz_std=fstd, damping_ratio_std=zstd,
+            frequency_hz_scatter=scatter[0][k], damping_ratio_scatter=scatter[1][k],
+            mode_energy=core.significance[k], **measures,
+        )
+        for key, v in vals.items():
+            cols[key][i] = v
+
+    @staticmethod
+    def _dataset(records: xr.Dataset, prep: _Prepared, cols: dict[str, np.ndarray],
+                 per_mode: dict[str, Any], fit_r2: np.ndarray, use_force: bool) -> xr.Dataset:
         # variables collected first and the Dataset built once (one merge, not one per variable)
+        m = len(per_mode["status"])
         coords: dict[str, Any] = {"mode": np.arange(1, m + 1), "channel": prep.channels,
                                   "hit": prep.hits}
         for extra in ("node", "direction", "x", "y", "z"):
             if extra in records.coords:
                 coords[extra] = ("channel", records[extra].values)
         dv: dict[str, Any] = {}
-        units = {"frequency_hz": "Hz", "frequency_hz_std": "Hz", "frequency_hz_scatter": "Hz",
-                 "damped_frequency_hz": "Hz", "decay_time_constant_s": "s",
-                 "decay_rate_db_per_s": "dB/s"}
         for key, v in cols.items():
-            dv[key] = ("mode", v, {"units": units.get(key, "1")})
+            dv[key] = ("mode", v, {"units": _UNITS.get(key, "1")})
         dv["mode_energy"][2]["description"] = "fitted energy over the noise variance"
-        dv["regime"] = ("mode", np.array(regime, dtype=object))
-        dv["status"] = ("mode", np.array(status, dtype=object))
+        dv["regime"] = ("mode", np.array(per_mode["regime"], dtype=object))
+        dv["status"] = ("mode", np.array(per_mode["status"], dtype=object))
         resp_units = str(records["response"].attrs.get("units", ""))
-        r_units = f"{resp_units}/({records['force'].attrs.get('units', 'N')} s)" if use_force else resp_units
-        dv["shape_amplitude"] = (("mode", "channel"), shape_amp)
-        dv["shape_phase_deg"] = (("mode", "channel"), shape_ph, {"units": "deg"})
+        r_units = (f"{resp_units}/({records['force'].attrs.get('units', 'N')} s)" if use_force
+                   else resp_units)
+        ch_res, hit_res = per_mode["ch_res"], per_mode["hit_res"]
+        dv["shape_amplitude"] = (("mode", "channel"), per_mode["shape_amp"])
+        dv["shape_phase_deg"] = (("mode", "channel"), per_mode["shape_ph"], {"units": "deg"})
         dv["residue_real"] = (("mode", "channel"), ch_res.real, {"units": r_units})
         dv["residue_imag"] = (("mode", "channel"), ch_res.imag, {"units": r_units})
         dv["hit_residue_real"] = (("mode", "hit", "channel"), hit_res.real, {"units": r_units})
@@ -543,9 +667,13 @@ class ModeFit:
             ["ok" if lv else "dead channel (constant in the window): left out of the pole fit"
              for lv in prep.live], dtype=object))
         dv["hit_accepted"] = ("hit", prep.accepted)
-        dv["hit_reason"] = ("hit", np.array(prep.reasons, dtype=object))
-        ds = xr.Dataset(dv, coords=coords)
-        settings = {
+        return xr.Dataset(dv, coords=coords)
+
+    def _settings(self, prep: _Prepared, core: CoreResult, band: tuple[float, float],
+                  window: Any, asked: np.ndarray, dropped: list[float],
+                  cols: dict[str, np.ndarray]) -> dict[str, Any]:
+        """The choices and outcomes of the fit, for ``attrs["settings"]`` (JSON)."""
+        return {
             "band": [float(band[0]), float(band[1])],
             "window": [float(prep.t_win[0]), float(prep.t_win[-1])],
             "window_requested": None if window is None else [float(v) for v in window],
@@ -553,9 +681,9 @@ class ModeFit:
             "add_modes": asked.tolist(),
             "add_modes_not_found": [
                 float(f) for f in asked if not np.any(np.abs(cols["frequency_hz"] - f) < ASKED_TOL * f)],
-            "drop_modes": list(self._dropped),
+            "drop_modes": list(dropped),
             "max_order": self.max_order,
-            "modes_fitted": int(m_all),
+            "modes_fitted": int(core.sigma.size),
             "hits_used": [int(h) for h in prep.hits[prep.acc_idx]],
             "noise_weighting": prep.noise_from,
             "offset": "constant term per signal (not a mode)",
@@ -568,161 +696,3 @@ class ModeFit:
             "method": "band-split multi-signal matrix pencil (Hua & Sarkar 1990) + variable "
                       "projection (Golub & Pereyra 1973) with shared poles",
         }
-        ds.attrs = {
-            "settings": json.dumps(settings),
-            "band": settings["band"], "window": settings["window"],
-            "n_modes": -1 if self.n_modes is None else int(self.n_modes),
-            "exponential_window_tau_s": -1.0 if prep.tau is None else prep.tau,
-            "modalnb_version": __version__,
-            "input_checksum": records_checksum(records),
-        }
-        return ds
-
-
-def fit_modes(
-    records: xr.Dataset,
-    band: tuple[float, float] | None = None,
-    window: tuple[float, float] | None = None,
-    n_modes: int | None = None,
-    *,
-    accept: Mapping[int, bool] | Sequence[bool] | None = None,
-    max_order: int | None = None,
-    scatter: bool = True,
-    recipe: Any = None,
-    blas_threads: int | None = 1,
-    add_modes: Sequence[float] | None = None,
-    drop_modes: Sequence[float] | None = None,
-) -> xr.Dataset:
-    """Natural frequencies, damping ratios and shapes of a record set, with uncertainties.
-
-    One pole per mode for the whole record set: the poles are estimated jointly over
-    all channels and accepted hits, the residues per channel and hit.
-
-    Parameters
-    ----------
-    records : xarray.Dataset
-        Record set (:mod:`modalnb.records`).
-    band : (float, float), optional
-        Only modes with natural frequency in (fmin, fmax) Hz are reported (all modes up to
-        0.45 fs are fitted, so modes outside the band do not bias those inside).
-    window : (float, float), optional
-        Absolute times (s) of the samples used. Default: from the end of the last force
-        contact (latest over accepted hits; after a double hit, its second tap) to the
-        record end; without force from the first sample with t >= 0.
-    n_modes : int, optional
-        Report only the N strongest in-band modes (by fitted energy).
-    accept : mapping or sequence of bool, optional
-        Hit decisions; default exactly those of :func:`modalnb.checks.check_hits`. A
-        mapping ``{hit: bool}`` overrides the automatic decision of the hits it names; a
-        sequence gives one decision per hit (no checks run).
-    max_order : int, optional
-        Highest pencil order per sub-band (default 20).
-    scatter : bool
-        Compute the hit-to-hit scatter (per-hit pole refits) when >= 3 hits are accepted.
-    add_modes : sequence of float, optional
-        Frequencies (Hz) of modes the automatic search missed: each seeds a pole (1 %
-        damping) that the fit refines and keeps (status "added by the user", with a warning
-        when its energy is within noise).
-    drop_modes : sequence of float, optional
-        Frequencies (Hz) of fitted modes to leave out of the table (the nearest mode within
-        5 %). The mode stays in the fitted model, so its neighbours are not biased.
-    blas_threads : int or None
-        BLAS threads during the fit (default 1: fastest on a busy machine and inside
-        dask workers; None leaves the thread pools as they are).
-    recipe : modalnb.Recipe or path, optional
-        Replay an analysis recipe (a :class:`modalnb.Recipe` or its JSON file): hit checks
-        with the recipe's thresholds and overrides, then this fit with its band, window and
-        model order (:func:`modalnb.pipeline.run_recipe`; the same table as ``modalnb fit
-        --recipe``). Then `band`, `window`, `n_modes` and `accept` must not be given.
-
-    Returns
-    -------
-    xarray.Dataset
-        Over ``mode``: ``frequency_hz``, ``damping_ratio``, their ``_std`` (1 sigma from the
-        covariance of the projected Jacobian scaled by the residual variance) and
-        ``_scatter`` (standard deviation of per-hit refits; NaN with a status note below 3
-        accepted hits), ``regime``, ``status``, ``damped_frequency_hz``, ``q_factor``,
-        ``loss_factor``, ``log_decrement``, ``decay_time_constant_s``,
-        ``decay_rate_db_per_s``, ``mode_energy``. Over (mode, channel): ``shape_amplitude``,
-        ``shape_phase_deg``, ``residue_real``/``residue_imag`` (per unit force, integrated
-        force spectrum at the pole, where force exists). Over (mode, hit, channel):
-        ``hit_residue_real``/``_imag`` (NaN for rejected hits). Over channel: ``fit_r2``,
-        ``channel_note``. Over hit: ``hit_accepted``, ``hit_reason``. The damping
-        cross-checks of :func:`modalnb.estimate.cross_checks` (``xcheck_*``, each with its
-        known bias in the attrs).
-
-    Notes
-    -----
-    1. Preparation: accepted hits, window, exponential window undone exactly, each channel
-       weighted by 1/noise (pre-trigger) or by its residual RMS after a first fit; a
-       constant offset per signal is a linear term, not a mode.
-    2. Poles: the weighted signals are compressed to their leading principal components;
-       candidates come from band-split matrix pencils (Hua & Sarkar 1990) swept over
-       orders, kept when stable across orders and energetic (energy ranking).
-    3. Refinement: variable projection (Golub & Pereyra 1973; shared poles over data
-       sets, Golub & LeVeque 1979) with Kaufman's (1975) Jacobian, Levenberg-Marquardt
-       then a final lmfit ``least_squares`` pass. A mode is (sigma, u = wd^2), continuous
-       through critical damping (repeated-pole basis, Fermo et al. 2013); modes whose
-       energy is within noise are dropped.
-    4. Residue of an oscillating mode: ``x(t) = 2 Re(r exp(lambda t))`` with t = 0 the
-       record origin; of an overdamped one the residue of the slower pole; of a critical
-       one ``a + b/sigma`` of ``(a + b t) exp(-sigma t)``.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> from modalnb.records import records_from_arrays
-    >>> from modalnb.synth import free_decay
-    >>> t = np.arange(2048) / 2048.0
-    >>> x = free_decay(t, [40.0, 90.0], [0.01, 0.02], [1.0, 0.5])
-    >>> x = x + 1e-4 * np.random.default_rng(1).standard_normal(t.size)
-    >>> res = fit_modes(records_from_arrays(x, 2048.0), accept=[True])
-    >>> np.round(res["frequency_hz"].values, 2)
-    array([40., 90.])
-    """
-    if recipe is not None:
-        given = [name for name, v in (("band", band), ("window", window), ("n_modes", n_modes),
-                                      ("accept", accept), ("add_modes", add_modes),
-                                      ("drop_modes", drop_modes)) if v is not None]
-        if given:
-            raise EstimationError(
-                f"fit_modes: pass either recipe= or {', '.join(given)}, not both (the recipe "
-                "holds every choice). Hint: edit the recipe instead."
-            )
-        from ..pipeline import run_recipe
-        from ..recipe import Recipe, load_recipe
-
-        rec = recipe if isinstance(recipe, Recipe) else load_recipe(recipe)
-        return run_recipe(records, rec)[0]
-    est = ModeFit(band=band, window=window, n_modes=n_modes, accept=accept,
-                  max_order=max_order, scatter=scatter, blas_threads=blas_threads,
-                  add_modes=add_modes, drop_modes=drop_modes)
-    from ._xcheck import with_cross_checks
-
-    result = with_cross_checks(records, est.fit(records).result_)
-    result.attrs["recipe"] = _recipe_of_call(records, band, window, n_modes, accept, result,
-                                             add_modes, drop_modes)
-    return result
-
-
-def _recipe_of_call(records: xr.Dataset, band: Any, window: Any, n_modes: Any, accept: Any,
-                    result: xr.Dataset, add_modes: Any = None, drop_modes: Any = None) -> str:
-    """The recipe (JSON) that replays this call: its choices, hit decisions as overrides.
-
-    With ``accept=None`` the decisions are those of the default hit checks, which a replay
-    repeats, so no override is stored; an explicit `accept` becomes one override per hit.
-    """
-    from ..pipeline import recipe_for
-    from ..recipe import Recipe
-
-    overrides = {}
-    if accept is not None:
-        overrides = {int(h): bool(a) for h, a in zip(result["hit"].values,
-                                                     result["hit_accepted"].values, strict=True)}
-    rec = recipe_for(records, Recipe(
-        band=None if band is None else tuple(band), window=None if window is None else tuple(window),
-        n_modes=None if n_modes is None else int(n_modes), hit_overrides=overrides,
-        add_modes=list(add_modes or []), drop_modes=list(drop_modes or []),
-        source=str(records.attrs.get("source", "")) or None,
-    ))
-    return rec.to_json()

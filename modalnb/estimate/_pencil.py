@@ -24,6 +24,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ._significance import significance_threshold
+
 TWO_PI = 2.0 * np.pi
 
 
@@ -185,8 +187,6 @@ def find_poles(
         Least pole energy over the noise variance per sample for a candidate
         (default: 3 times the threshold of the refinement stage, common practice).
     """
-    from ._core import significance_threshold
-
     p, n = data.shape
     dt = 1.0 / fs
     t_len = n * dt

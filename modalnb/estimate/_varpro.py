@@ -142,30 +142,6 @@ class Problem:
         return coef
 
 
-def gauss_newton(prob: Problem, x: np.ndarray, steps: int = 3) -> np.ndarray:
-    """A few damped Gauss-Newton steps of the projected problem from `x` (used per hit)."""
-    x = np.asarray(x, float).copy()
-    cost = float(np.sum(prob.residual(x) ** 2))
-    for _ in range(steps):
-        j = prob.jacobian(x)
-        r = prob.residual(x)
-        try:
-            dx, *_ = np.linalg.lstsq(j, -r, rcond=None)
-        except np.linalg.LinAlgError:
-            break
-        lam = 1.0
-        for _ in range(6):
-            xn = x + lam * dx
-            cn = float(np.sum(prob.residual(xn) ** 2))
-            if cn <= cost:
-                x, cost = xn, cn
-                break
-            lam *= 0.5
-        else:
-            break
-    return x
-
-
 def levenberg_marquardt(
     prob: Problem, x: np.ndarray, max_iter: int = 60, rtol: float = 1e-10
 ) -> tuple[np.ndarray, int]:

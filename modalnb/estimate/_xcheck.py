@@ -137,16 +137,16 @@ def cross_checks(records: xr.Dataset, result: xr.Dataset) -> xr.Dataset:
     >>> import numpy as np
     >>> from modalnb.records import records_from_arrays
     >>> from modalnb.synth import free_decay
-    >>> from modalnb.estimate import fit_modes
+    >>> from modalnb.estimate import SharedPoleFit
     >>> t = np.arange(8192) / 2048.0
     >>> x = free_decay(t, 50.0, 0.01) + 1e-5 * np.random.default_rng(0).standard_normal(8192)
     >>> rec = records_from_arrays(x, 2048.0)
-    >>> res = fit_modes(rec, accept=[True])
+    >>> res = SharedPoleFit().fit(rec).result_
     >>> round(float(cross_checks(rec, res)["xcheck_log_decrement_damping"][0]), 3)
     0.01
     """
     if "frequency_hz" not in result or "shape_amplitude" not in result:
-        raise EstimationError("`result` must be a modal table returned by fit_modes.")
+        raise EstimationError("`result` must be a modal table (modalnb.fit_modes or the engine's result_).")
     fns = np.asarray(result["frequency_hz"].values, float)
     zetas = np.asarray(result["damping_ratio"].values, float)
     m = fns.size
@@ -193,15 +193,19 @@ def cross_checks(records: xr.Dataset, result: xr.Dataset) -> xr.Dataset:
 def with_cross_checks(records: xr.Dataset, result: xr.Dataset) -> xr.Dataset:
     """`result` with the :func:`cross_checks` variables added beside each mode.
 
+    The one place the cross-checks join a table (the finisher of
+    :mod:`modalnb.fitting` calls it for every public entry point); a table that has them
+    is returned as it is.
+
     Examples
     --------
     >>> import numpy as np
     >>> from modalnb.records import records_from_arrays
     >>> from modalnb.synth import free_decay
-    >>> from modalnb.estimate import fit_modes
+    >>> from modalnb.estimate import SharedPoleFit
     >>> t = np.arange(4096) / 2048.0
     >>> rec = records_from_arrays(free_decay(t, 40.0, 0.02), 2048.0)
-    >>> "xcheck_hilbert_damping" in fit_modes(rec, accept=[True])
+    >>> "xcheck_hilbert_damping" in with_cross_checks(rec, SharedPoleFit().fit(rec).result_)
     True
     """
     if "xcheck_note" in result:

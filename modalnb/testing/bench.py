@@ -254,7 +254,7 @@ def curve_fit_modes(
 # --- modalnb ------------------------------------------------------------------------
 def _engine() -> Callable[..., Any]:
     """The engine under test. A broken engine raises here: the benchmark never runs without it."""
-    from ..estimate import fit_modes
+    from ..fitting import fit_modes
 
     return fit_modes
 
@@ -529,7 +529,7 @@ def _speed(quick: bool, rng: np.random.Generator, fit: Callable[..., Any]) -> di
     out["curve_fit_over_fit"] = out["curve_fit_s"] / out["fit_modes_s"]
     # refit latency after a window change: the estimator's refit path (ModeFit.refit,
     # which starts from the poles already found), and the notebook state object on top
-    from ..estimate import ModeFit
+    from ..fitting import ModeFit
 
     small = _records(_campaign(rng, 4, 1, fs) if quick else _campaign(rng, 16, 5, fs), fs)
     out["refit_shape"] = list(small["response"].shape)
