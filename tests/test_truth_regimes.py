@@ -58,8 +58,8 @@ def test_regime_near_critical_matches_the_characteristic_roots(zeta):
 @pytest.mark.xfail(strict=True, raises=AssertionError, reason=(
     "engine defect: a one-DOF overdamped decay (zeta 1.03, 60 dB SNR, this noise draw) is "
     "returned as two modes (6.19 Hz zeta 1.03 and 6.87 Hz zeta 1.20, both labelled "
-    "critical) instead of one overdamped mode at 10 Hz (characteristic roots -49.4 and "
-    "-80.0 1/s); the model-order choice splits the real pole pair"))
+    "critical) instead of one overdamped mode at 10 Hz (characteristic roots -49.2 and "
+    "-80.2 1/s); the model-order choice splits the real pole pair"))
 def test_overdamped_near_critical_is_one_mode_at_high_snr():
     rec, c = _sdof_record(1.03, 60.0, seed=1)
     res = modalnb.fit_modes(rec, accept=[True])
