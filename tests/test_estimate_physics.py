@@ -9,8 +9,9 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from reference_models import eig_truth as _truth
+from reference_models import state_matrix as _state_matrix
 from scipy.integrate import solve_ivp
-from scipy.linalg import eig
 
 import modalnb
 
@@ -20,22 +21,6 @@ FS = 2048.0
 def _mac(a, b):
     """|a^H b|^2 / ((a^H a)(b^H b)) (Allemang & Brown 1982, 1st IMAC), written out."""
     return abs(np.vdot(a, b)) ** 2 / (np.vdot(a, a).real * np.vdot(b, b).real)
-
-
-def _state_matrix(m, c, k):
-    n = m.shape[0]
-    minv = np.linalg.inv(m)
-    return np.block([[np.zeros((n, n)), np.eye(n)], [-minv @ k, -minv @ c]])
-
-
-def _truth(m, c, k):
-    """(fn Hz, zeta, complex displacement shapes) of the underdamped modes (scipy eig)."""
-    w, v = eig(_state_matrix(m, c, k))
-    n = m.shape[0]
-    keep = w.imag > 0
-    w, v = w[keep], v[:n, keep]
-    order = np.argsort(np.abs(w))
-    return np.abs(w[order]) / (2 * np.pi), -w[order].real / np.abs(w[order]), v[:, order]
 
 
 def _simulate(m, c, k, amps, drive=0, t_pulse=1e-3, n=4096, pre=64, noise=0.0, seed=0,
