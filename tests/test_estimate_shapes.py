@@ -1,12 +1,20 @@
-"""MAC, MPC and damping conversions against hand-computable cases and published formulas."""
+"""MAC, MPC and damping conversions against hand-computable cases and published formulas.
+
+MAC: ``|a^H b|^2 / ((a^H a)(b^H b))`` (Allemang & Brown 1982, "A correlation coefficient
+for modal vector analysis", 1st IMAC). MPC: a measure of how far a complex shape is from
+a real (monophase) one (Pappa, Elliott & Schenk 1993, J. Guidance Control Dyn.
+16(5):852-858); the engine documents the uncentred form ``|phi^T phi|^2 / (phi^H phi)^2``,
+evaluated by hand below. Damping relations: wn = sqrt(k/m), c_c = 2 sqrt(k m),
+zeta = c / c_c, envelope exp(-zeta wn t) (Thomson & Dahleh 1998, *Theory of Vibration
+with Applications*, ch. 2; from memory); the numeric constants are re-derived in the test.
+"""
 
 from __future__ import annotations
 
 import numpy as np
 import pytest
 
-from modalnb._errors import EstimationError
-from modalnb.estimate import mac, mac_matrix, modal_conversions, mpc
+from modalnb import EstimationError, Recipe, fit_modes, mac, mac_matrix, modal_conversions, mpc
 
 
 def test_mac_hand_cases():
@@ -33,7 +41,7 @@ def test_mpc_hand_cases():
     assert mpc((1 + 2j) * np.array([1.0, -2.0, 0.5])) == pytest.approx(1.0)
     # [1, j]: circular scatter, |phi^T phi|^2 = |1 - 1|^2 = 0
     assert mpc([1, 1j]) == pytest.approx(0.0, abs=1e-15)
-    # uncentred moments: [1, 1 + j] is not collinear (METHODS §6); by hand
+    # uncentred moments: [1, 1 + j] is not collinear; by hand
     # phi^T phi = 1 + 2j, |.|^2 = 5; phi^H phi = 3 -> 5/9
     assert mpc([1, 1 + 1j]) == pytest.approx(5 / 9)
 
@@ -42,19 +50,27 @@ def test_conversions_formulas():
     fn, zeta, m = 25.0, 0.02, 3.0
     d = modal_conversions(fn, zeta, mass=m)
     wn = 2 * np.pi * fn
-    # METHODS §1: k = m wn^2, c = 2 zeta sqrt(k m), c_c = 2 sqrt(k m)
+    # k = m wn^2, c = 2 zeta sqrt(k m), c_c = 2 sqrt(k m) (definitions, see above)
     assert d["stiffness"] == pytest.approx(m * wn**2)
     assert d["critical_damping"] == pytest.approx(2 * np.sqrt(d["stiffness"] * m))
     assert d["damping_coefficient"] == pytest.approx(2 * zeta * m * wn)
-    # T60 relation zeta = 1.0995/(fn T60) and dB/s relation zeta = D/(54.58 fn) (METHODS §1)
-    assert zeta == pytest.approx(1.0995 / (fn * d["t60_s"]), rel=1e-4)
-    assert zeta == pytest.approx(d["decay_rate_db_per_s"] / (54.58 * fn), rel=1e-4)
-    # energy decays at twice the amplitude rate (METHODS §1)
+    # T60: the envelope exp(-zeta wn t) falls 60 dB (a factor 1000) in T60, so
+    # zeta = ln(1000) / (2 pi fn T60) = 1.0994 / (fn T60)
+    assert np.log(1e3) / (2 * np.pi) == pytest.approx(1.0994, abs=1e-4)
+    assert zeta == pytest.approx(np.log(1e3) / (2 * np.pi * fn * d["t60_s"]), rel=1e-12)
+    # dB/s: D = 20 log10(e) zeta wn, so zeta = D / (20 log10(e) 2 pi fn) = D / (54.575 fn)
+    assert 20 * np.log10(np.e) * 2 * np.pi == pytest.approx(54.575, abs=1e-3)
+    assert zeta == pytest.approx(d["decay_rate_db_per_s"] / (20 * np.log10(np.e) * 2 * np.pi * fn),
+                                 rel=1e-12)
+    # energy (amplitude squared) decays at twice the amplitude rate: 2 zeta wn
     assert d["energy_decay_rate_per_s"] == pytest.approx(2 * zeta * wn)
-    # exact log decrement and its inverse zeta = delta / sqrt(4 pi^2 + delta^2) (METHODS §1)
+    # exact log decrement: ln of the ratio of the envelope exp(-zeta wn t) one damped period
+    # 2 pi / (wn sqrt(1 - zeta^2)) apart, delta = 2 pi zeta / sqrt(1 - zeta^2); its inverse
+    # zeta = delta / sqrt(4 pi^2 + delta^2)
     delta = d["log_decrement"]
+    assert delta == pytest.approx(2 * np.pi * zeta / np.sqrt(1 - zeta**2), rel=1e-12)
     assert delta / np.sqrt(4 * np.pi**2 + delta**2) == pytest.approx(zeta)
-    # half-power relation (METHODS §1): (f2^2 - f1^2)/(4 fn^2) = zeta sqrt(1 - zeta^2), with
+    # half-power relation: (f2^2 - f1^2)/(4 fn^2) = zeta sqrt(1 - zeta^2), with
     # w1,2^2 = wn^2 (1 - 2 zeta^2 -+ 2 zeta sqrt(1 - zeta^2)) the -3 dB points of |H|^2
     # of the displacement FRF 1/(wn^2 - w^2 + 2j zeta wn w); located numerically here
     w = np.linspace(0.5 * wn, 1.5 * wn, 400001)
@@ -74,9 +90,7 @@ def test_conversions_formulas():
 def test_accept_mapping_overrides_only_the_hits_it_names():
     # the demo truth (demo_truth.json): hit 4 is a double hit, hit 6 clips; both rejected by
     # the default checks. A mapping naming hit 4 accepts it and leaves hit 6 rejected.
-    from modalnb import fit_modes
     from modalnb.demo import load_demo, load_demo_truth
-    from modalnb.recipe import Recipe
 
     truth = load_demo_truth()
     dbl, clip = truth["double_hit"]["hit"], truth["clipped_hit"]["hit"]
