@@ -133,23 +133,11 @@ def test_basis_and_its_u_derivative_match_the_closed_forms(u):
     _check_columns(u)
 
 
-@pytest.mark.xfail(strict=True, raises=AssertionError, reason=(
-    "engine defect in modalnb/estimate/_basis.py, series branch (|u| t_max^2 < 1e-4, near "
-    "critical damping): mode_columns uses 1 + u t^2/2 + ... and t (1 + u t^2/6 + ...) "
-    "where cos(sqrt(u) t) = 1 - u t^2/2 + u^2 t^4/24 and sin(sqrt(u) t)/sqrt(u) = "
-    "t (1 - u t^2/6 + u^2 t^4/120) (same for cosh/sinh with u < 0), and mode_columns_du "
-    "returns +t^2/2 ... instead of -t^2/2 + u t^4/12 and -t^3/6 + u t^5/60: the "
-    "u-derivatives have the wrong sign near critical damping"))
 @pytest.mark.parametrize("u", [1e-7, -1e-7])  # both sides of critical, series branch
 def test_basis_near_critical_matches_the_series_of_the_closed_forms(u):
     _check_columns(u)
 
 
-@pytest.mark.xfail(strict=True, raises=AssertionError, reason=(
-    "engine defect (consequence of the series-branch sign in modalnb/estimate/_basis.py): "
-    "at a critically damped mode (|u| t_max^2 < 1e-4) the Kaufman Jacobian column for u "
-    "has the opposite sign of the finite-difference Jacobian of the projected residual, "
-    "so the optimiser is handed a wrong gradient there"))
 def test_explicit_kaufman_jacobian_near_critical_damping():
     # a critically damped decay (A + B t) exp(-wn t) (repeated real root), two signals
     fs, wn = 1000.0, 2 * np.pi * 10.0

@@ -27,8 +27,8 @@ def mode_columns(t: np.ndarray, sigma: float, u: float) -> tuple[np.ndarray, np.
     if abs(x) < SERIES_LIMIT:
         e = np.exp(-sigma * t)
         t2u = u * t * t
-        c = e * (1.0 + t2u / 2.0 + t2u * t2u / 24.0)
-        s = e * t * (1.0 + t2u / 6.0 + t2u * t2u / 120.0)
+        c = e * (1.0 - t2u / 2.0 + t2u * t2u / 24.0)  # cos(sqrt(u) t), Taylor
+        s = e * t * (1.0 - t2u / 6.0 + t2u * t2u / 120.0)  # sin(sqrt(u) t) / sqrt(u)
         return c, s
     if u > 0:
         w = np.sqrt(u)
@@ -63,7 +63,7 @@ def mode_columns_du(
     if abs(u * tmax * tmax) < SERIES_LIMIT:
         e = np.exp(-sigma * t)
         t2 = t * t
-        return e * (t2 / 2.0 + t2 * t2 * u / 12.0), e * t * (t2 / 6.0 + t2 * t2 * u / 60.0)
+        return e * (-t2 / 2.0 + t2 * t2 * u / 12.0), e * t * (-t2 / 6.0 + t2 * t2 * u / 60.0)
     return -0.5 * t * s, (t * c - s) / (2.0 * u)
 
 
