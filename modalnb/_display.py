@@ -2,7 +2,7 @@
 display decimation, the dB helpers.
 
 Pure numpy, no plotting library: the widgets (:mod:`modalnb.widgets`) and the report
-(:mod:`modalnb.report`) both take their colours and their reduced traces from here, so a
+(:mod:`modalnb.export.report`) both take their colours and their reduced traces from here, so a
 measured trace looks the same, and keeps the same peaks, on a screen and in a report.
 """
 

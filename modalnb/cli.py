@@ -134,7 +134,7 @@ def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: s
     steps("writing the modal table")
     write_modal_table(result, out, recipe=recipe, checks=checks)
     steps("writing the HTML report")
-    from .report import write_report
+    from .export import write_report
 
     write_report(records, result, checks, out / "report.html", title=title)
     steps.done()

@@ -346,8 +346,7 @@ class Analysis:
             raise ModalnbError("nothing to export yet: the fit has not succeeded. Hint: see `error`.")
         if self.preview and not self._apply(self.recipe, full=True):
             raise ModalnbError(f"the full fit before export failed: {self.error}")
-        from .export import write_modal_table
-        from .report import write_report
+        from .export import write_modal_table, write_report
 
         out = Path(out_dir)
         files: dict[str, Path] = {}

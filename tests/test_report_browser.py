@@ -19,7 +19,7 @@ from plotly.offline import get_plotlyjs
 
 from modalnb import records_from_arrays
 from modalnb._display import PALETTE
-from modalnb.report import report_html
+from modalnb.export import report_html
 from modalnb.synth import free_decay
 
 CHROMIUM = shutil.which("chromium")

@@ -58,10 +58,12 @@ def test_the_truth_file_agrees_with_an_independent_beam_model(beam):
     f1 = 1.87510407**2 / (2 * np.pi * g["length_m"] ** 2) * np.sqrt(
         g["youngs_modulus_pa"] * inertia / (g["density_kg_m3"] * area))
     np.testing.assert_allclose(fn[0], f1, rtol=1e-5)  # Blevins 1979 (FE converges from above)
+    # the truth file's modes come from the generator's build-independent inverse iteration,
+    # which LAPACK's eigh reproduces to about 2e-9 (eigh's own accuracy on this FE model)
     for i, mode in enumerate(truth["modes"]):
-        np.testing.assert_allclose(mode["frequency_hz"], fn[i], rtol=1e-9)
+        np.testing.assert_allclose(mode["frequency_hz"], fn[i], rtol=1e-8)
         s = shapes[:, i] / shapes[np.argmax(np.abs(shapes[:, i])), i]
-        np.testing.assert_allclose(mode["amplitude"], np.abs(s), rtol=1e-9)
+        np.testing.assert_allclose(mode["amplitude"], np.abs(s), rtol=1e-8, atol=1e-10)
         np.testing.assert_allclose(mode["phase_deg"], np.where(s < 0, 180.0, 0.0), atol=1e-9)
 
 

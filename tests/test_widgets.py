@@ -261,10 +261,10 @@ def test_decimation_keeps_every_peak():
 def test_widgets_and_report_share_one_palette_and_one_decimation():
     # one palette: no colour literal anywhere in the report or the widgets, only in _display
     hex_colour = re.compile(r"#[0-9a-fA-F]{6}\b|rgba?\(")
-    for path in [ROOT / "modalnb" / "report.py", *sorted((ROOT / "modalnb" / "widgets").glob("*.py"))]:
+    for path in [ROOT / "modalnb" / "export" / "report.py", *sorted((ROOT / "modalnb" / "widgets").glob("*.py"))]:
         found = hex_colour.findall(path.read_text())
         assert found == [], f"{path.name} defines its own colours: {found}"
-    assert "def decimate" not in (ROOT / "modalnb" / "report.py").read_text()
+    assert "def decimate" not in (ROOT / "modalnb" / "export" / "report.py").read_text()
     for path in (ROOT / "modalnb" / "widgets").glob("*.py"):
         assert "def decimate" not in path.read_text(), path.name
         assert "0.45" not in path.read_text(), path.name  # the default band comes from _utils

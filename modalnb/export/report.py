@@ -16,10 +16,10 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
-from ._display import PALETTE, decimate_for_display
-from ._errors import ModalnbError
-from ._files import atomic_write_text
-from .export import CAUTION, hits_rows, modes_rows
+from .._display import PALETTE, decimate_for_display
+from .._errors import ModalnbError
+from .._files import atomic_write_text
+from ._rows import CAUTION, hits_rows, modes_rows
 
 __all__ = ["write_report", "report_html"]
 
@@ -144,7 +144,7 @@ def report_html(
     (True, True)
     """
     if model is None:
-        from .estimate import model_traces
+        from ..estimate import model_traces
 
         try:
             model = model_traces(records, result)

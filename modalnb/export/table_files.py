@@ -1,0 +1,134 @@
+"""The modal table as files: CSV, netCDF and JSON (and the recipe beside them).
+
+Files written by :func:`write_modal_table` (the contract other tools rely on):
+
+* ``modes.csv``  — ``mode,frequency_hz,damping_ratio,frequency_hz_std,damping_ratio_std,regime``,
+  then every other per-mode quantity;
+* ``shapes.csv`` — ``mode,channel,amplitude,phase_deg``, then the other per-(mode, channel)
+  quantities;
+* ``hits.csv``   — ``hit,accepted,reason,warnings`` (``accepted`` is ``true``/``false``);
+* ``modes.nc`` (the result Dataset), ``modes.json`` (everything above), ``recipe.json``.
+
+All files of one call are first written to temporary files in the output folder and then
+renamed into place, so an existing folder is updated, never left half-written.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import os
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import xarray as xr
+
+from .._files import staged_files
+from ..recipe import Recipe
+from ._rows import (
+    CAUTION,
+    HIT_COLUMNS,
+    MODE_COLUMNS,
+    SHAPE_COLUMNS,
+    _csv_cell,
+    _json_safe,
+    hits_rows,
+    modes_rows,
+    shapes_rows,
+)
+
+__all__ = ["write_modal_table"]
+
+
+def _csv_text(rows: list[dict[str, Any]], columns: list[str]) -> str:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(columns)
+    for row in rows:
+        w.writerow([_csv_cell(row.get(c, "")) for c in columns])
+    return buf.getvalue()
+
+
+def _columns(rows: list[dict[str, Any]], first: tuple[str, ...]) -> list[str]:
+    cols = list(first)
+    for row in rows:
+        for c in row:
+            if c not in cols:
+                cols.append(c)
+    return cols
+
+
+def _netcdf_ready(result: xr.Dataset) -> xr.Dataset:
+    out = result.copy()
+    attrs = {}
+    for k, v in out.attrs.items():
+        if isinstance(v, (str, int, float, np.integer, np.floating)) and not isinstance(v, bool):
+            attrs[k] = v
+        else:
+            attrs[k] = json.dumps(_json_safe(v))
+    out.attrs = attrs
+    for name in list(out.variables):
+        out[name].attrs = {k: (v if isinstance(v, (str, int, float)) and not isinstance(v, bool) else json.dumps(_json_safe(v)))
+                           for k, v in out[name].attrs.items()}
+    return out
+
+
+def write_modal_table(
+    result: xr.Dataset,
+    out_dir: str | os.PathLike[str],
+    *,
+    recipe: Recipe | None = None,
+    checks: xr.Dataset | None = None,
+) -> dict[str, Path]:
+    """Write the modal table files into `out_dir` (created if needed), all or nothing.
+
+    Parameters
+    ----------
+    result : xarray.Dataset
+        The output of :func:`modalnb.fit_modes`.
+    out_dir : path
+        Output folder; existing files of the same names are replaced only once every new
+        file has been written completely.
+    recipe : Recipe, optional
+        Written as ``recipe.json``; default the recipe the table carries
+        (``result.attrs["recipe"]``, set by :func:`modalnb.fit_modes`), if any.
+    checks : xarray.Dataset, optional
+        Output of :func:`modalnb.check_hits`, for the ``warnings`` column.
+
+    Returns
+    -------
+    dict
+        File kind -> path written.
+    """
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    m_rows, s_rows, h_rows = modes_rows(result), shapes_rows(result), hits_rows(result, checks)
+    texts = {
+        "modes.csv": _csv_text(m_rows, _columns(m_rows, MODE_COLUMNS)),
+        "shapes.csv": _csv_text(s_rows, _columns(s_rows, SHAPE_COLUMNS)),
+        "hits.csv": _csv_text(h_rows, list(HIT_COLUMNS)),
+        "modes.json": json.dumps(
+            _json_safe(
+                {
+                    "caution": CAUTION,
+                    "attrs": dict(result.attrs),
+                    "modes": m_rows,
+                    "shapes": s_rows,
+                    "hits": h_rows,
+                }
+            ),
+            indent=2,
+        )
+        + "\n",
+    }
+    if recipe is None and isinstance(result.attrs.get("recipe"), str):
+        recipe = Recipe.from_json(result.attrs["recipe"])
+    if recipe is not None:
+        texts["recipe.json"] = recipe.to_json()
+    with staged_files(out) as stage:
+        for name, text in texts.items():
+            stage(name).write_bytes(text.encode("utf-8"))
+        _netcdf_ready(result).to_netcdf(stage("modes.nc"), engine="h5netcdf")
+    return {name: out / name for name in [*texts, "modes.nc"]}

@@ -1,0 +1,57 @@
+"""The modal table as aligned text for the terminal (the CLI's printout)."""
+
+from __future__ import annotations
+
+import math
+
+import xarray as xr
+
+from ._rows import _value
+
+__all__ = ["format_modal_table"]
+
+
+def format_modal_table(result: xr.Dataset) -> str:
+    """The modal table as aligned text with units in the header (for the terminal).
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> ds = xr.Dataset({"frequency_hz": ("mode", [12.5]), "frequency_hz_std": ("mode", [0.01]),
+    ...                  "damping_ratio": ("mode", [0.012]), "damping_ratio_std": ("mode", [0.0004]),
+    ...                  "regime": ("mode", ["underdamped"]), "status": ("mode", ["ok"])},
+    ...                 coords={"mode": [1]})
+    >>> print(format_modal_table(ds).splitlines()[0])
+    mode  f_n [Hz]  ± [Hz]  zeta [%]  ± [%]  Q [-]  regime       status
+    """
+    header = ["mode", "f_n [Hz]", "± [Hz]", "zeta [%]", "± [%]", "Q [-]", "regime", "status"]
+    rows = []
+    for k in range(result.sizes.get("mode", 0)):
+        def g(name: str, scale: float = 1.0, fmt: str = "{:.4g}", k: int = k) -> str:
+            if name not in result:
+                return "-"
+            v = _value(result[name].values[k])
+            if isinstance(v, float):
+                return "nan" if math.isnan(v) else fmt.format(v * scale)
+            return str(v)
+
+        q = "-"
+        if "damping_ratio" in result:
+            z = float(result["damping_ratio"].values[k])
+            q = f"{1 / (2 * z):.4g}" if z > 0 else "nan"
+        if "q_factor" in result:
+            q = g("q_factor")
+        rows.append([
+            str(_value(result["mode"].values[k])),
+            g("frequency_hz", fmt="{:.6g}"),
+            g("frequency_hz_std", fmt="{:.2g}"),
+            g("damping_ratio", 100, "{:.4g}"),
+            g("damping_ratio_std", 100, "{:.2g}"),
+            q,
+            g("regime"),
+            g("status"),
+        ])
+    widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(header)]
+    lines = ["  ".join(h.ljust(w) for h, w in zip(header, widths, strict=True)).rstrip()]
+    lines += ["  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip() for r in rows]
+    return "\n".join(lines)
