@@ -2,15 +2,20 @@
 
 Headless core (never imports ipywidgets or plotly):
 
-* records: :func:`open_records`, :func:`save_records`, :func:`records_from_arrays`,
-  :func:`validate_records`
-* hit checks: :func:`check_hits`
-* estimation: :func:`fit_modes`, :class:`ModeFit`, :func:`mac`, :func:`mpc`,
-  :func:`cross_checks`, :func:`modal_conversions`
-* the deliverable: :class:`Recipe`, :func:`run_recipe`, :func:`write_modal_table`
+* records: :func:`open_records`, :func:`save_records`, :func:`segment_recording`,
+  :func:`records_from_arrays`, :func:`validate_records`, :func:`records_checksum`
+* hit checks: :func:`check_hits`, :func:`format_hit_report`
+* estimation: :func:`fit_modes` (one scripted fit), :class:`ModeFit` (repeated refits),
+  :func:`mac`, :func:`mac_matrix`, :func:`mpc`, :func:`cross_checks`,
+  :func:`modal_conversions`
+* the deliverable: :class:`Recipe`, :func:`load_recipe`, :func:`save_recipe`,
+  :func:`run_recipe` (a reproducible replay), :func:`write_modal_table`
+* the notebook state: :class:`Analysis` (headless; the widgets are views over it)
+* errors: :class:`ModalnbError` and its subclasses :class:`RecordError`,
+  :class:`RecordFileNotFoundError`, :class:`EstimationError`, :class:`RecipeError`
 
-Widgets live in :mod:`modalnb.widgets` (imported only when asked for).
-* errors: :class:`ModalnbError`, :class:`RecordError`, :class:`EstimationError`
+Widgets live in :mod:`modalnb.widgets` (imported only when asked for); benchmark and test
+support in :mod:`modalnb.testing`; the demo campaign in :mod:`modalnb.demo`.
 """
 
 from __future__ import annotations
@@ -18,7 +23,13 @@ from __future__ import annotations
 from importlib.metadata import PackageNotFoundError, version
 
 from . import accessor as _accessor  # noqa: F401  (registers ds.modalnb)
-from ._errors import EstimationError, ModalnbError, RecordError, RecordFileNotFoundError
+from ._errors import (
+    EstimationError,
+    ModalnbError,
+    RecipeError,
+    RecordError,
+    RecordFileNotFoundError,
+)
 from .checks import check_hits, format_hit_report
 from .estimate import cross_checks, mac, mac_matrix, modal_conversions, mpc
 from .export import write_modal_table
@@ -26,13 +37,8 @@ from .fitting import ModeFit, fit_modes
 from .io import open_records, save_records, segment_recording
 from .pipeline import run_recipe
 from .recipe import Recipe, load_recipe, save_recipe
-from .records import (
-    get_sample_rate,
-    has_force,
-    records_checksum,
-    records_from_arrays,
-    validate_records,
-)
+from .records import records_checksum, records_from_arrays, validate_records
+from .session import Analysis
 
 try:
     __version__ = version("modalnb")
@@ -44,8 +50,6 @@ __all__ = (
     # records
     "validate_records",
     "records_from_arrays",
-    "get_sample_rate",
-    "has_force",
     "records_checksum",
     # io
     "open_records",
@@ -69,9 +73,12 @@ __all__ = (
     "Recipe",
     "load_recipe",
     "save_recipe",
+    # the notebook state
+    "Analysis",
     # errors
     "ModalnbError",
     "RecordError",
     "RecordFileNotFoundError",
     "EstimationError",
+    "RecipeError",
 )

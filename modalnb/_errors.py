@@ -7,7 +7,7 @@ hint on how to fix it.
 
 from __future__ import annotations
 
-__all__ = ["ModalnbError", "RecordError", "RecordFileNotFoundError", "EstimationError"]
+__all__ = ["ModalnbError", "RecordError", "RecordFileNotFoundError", "EstimationError", "RecipeError"]
 
 
 class ModalnbError(ValueError):
@@ -28,3 +28,7 @@ class RecordFileNotFoundError(RecordError, FileNotFoundError):
 
 class EstimationError(ModalnbError):
     """Mode estimation cannot proceed with the given records and settings."""
+
+
+class RecipeError(ModalnbError):
+    """A recipe (file or object) cannot be read, or does not fit the records."""

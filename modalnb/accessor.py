@@ -33,7 +33,7 @@ class ModalnbAccessor:
 
     @property
     def sample_rate(self) -> float:
-        """See :func:`modalnb.get_sample_rate`."""
+        """See :func:`modalnb.records.get_sample_rate`."""
         from .records import get_sample_rate
 
         return get_sample_rate(self._ds)

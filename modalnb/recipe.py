@@ -15,7 +15,7 @@ from dataclasses import asdict, dataclass, field, fields, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from ._errors import ModalnbError
+from ._errors import RecipeError
 from ._files import atomic_write_text
 from ._utils import check_band, frequency_list
 
@@ -29,10 +29,6 @@ __all__ = ["Recipe", "RecipeError", "load_recipe", "save_recipe", "recipe_for", 
 RECIPE_FORMAT = "modalnb-recipe"
 #: Version written by this modalnb; older versions are read (migrated) or refused.
 RECIPE_VERSION = 1
-
-
-class RecipeError(ModalnbError):
-    """A recipe file cannot be read or does not fit the records."""
 
 
 def package_version() -> str:

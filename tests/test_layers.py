@@ -158,3 +158,14 @@ def test_engine_imports_no_higher_layer():
             if not engine_may_import(target):
                 bad.append(" -> ".join(path))
     assert not bad, "the engine reaches a higher layer: " + "; ".join(sorted(bad)[:5])
+
+
+def test_public_api_holds_what_users_use_not_internals():
+    # issue 8 §4: the notebook state and the recipe error are public; record internals are not
+    import modalnb
+
+    assert {"Analysis", "RecipeError", "fit_modes", "ModeFit", "run_recipe"} <= set(modalnb.__all__)
+    assert not {"get_sample_rate", "has_force"} & set(modalnb.__all__)
+    missing = [name for name in modalnb.__all__ if not hasattr(modalnb, name)]
+    assert missing == []
+    assert issubclass(modalnb.RecipeError, modalnb.ModalnbError)

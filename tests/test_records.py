@@ -6,7 +6,8 @@ import numpy as np
 import pytest
 import xarray as xr
 
-from modalnb import RecordError, get_sample_rate, records_from_arrays, validate_records
+from modalnb import RecordError, records_from_arrays, validate_records
+from modalnb.records import get_sample_rate
 
 
 def _ds(n_hit=2, n_ch=3, n_t=128, fs=1000.0, **kw):
