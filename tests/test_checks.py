@@ -696,3 +696,20 @@ def test_unknown_threshold_is_a_one_line_error_with_a_hint():
         check_hits(ds, no_such=1)
     with pytest.raises(ModalnbError, match=r"`flat_run` must be an integer >= 2"):
         check_hits(ds, flat_run=1)
+
+
+def test_check_hits_does_not_import_scipy_signal():
+    # the checks are numpy only (the package docstring says so): a first check_hits call
+    # must not pull in scipy.signal, whose import dominated the command line's cold start
+    code = ("import sys, numpy as np\n"
+            "from modalnb.checks import check_hits\n"
+            "from modalnb.records import records_from_arrays\n"
+            "t = np.arange(-64, 1984) / 2048.0\n"
+            "f = np.where((t >= 0) & (t < 2e-3), np.sin(np.pi * t / 2e-3), 0.0)\n"
+            "x = np.exp(-20 * t) * np.sin(2 * np.pi * 100 * t) * (t >= 0)\n"
+            "x = x + 1e-4 * np.random.default_rng(0).standard_normal(t.size)\n"
+            "check_hits(records_from_arrays(x, 2048.0, force=f, t0=t[0]), band=(0, 500))\n"
+            "check_hits(records_from_arrays(x, 2048.0, t0=t[0]))\n"
+            "print(','.join(m for m in ('scipy.signal', 'plotly', 'ipywidgets') if m in sys.modules))\n")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == ""
