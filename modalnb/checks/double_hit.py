@@ -13,7 +13,7 @@ Measure
     than about half a pulse duration make a single, longer and skewed pulse that only a
     long ``pulse_duration_s`` betrays.
 
-Without a force record
+Without a force record (or with a dead one)
     The response shows each tap as a new excitation of the free decay. A linear
     predictor of order :data:`AR_ORDER` is fitted by least squares to the live channel
     with the best signal-to-noise ratio (a free decay of up to AR_ORDER / 2 modes obeys
@@ -140,7 +140,11 @@ def _prediction_error(x: np.ndarray, drop: np.ndarray | None) -> np.ndarray:
     lagged = np.stack([x[p - k - 1:n - k - 1] for k in range(p)], axis=1)
     target = x[p:]
     keep = slice(None) if drop is None else ~drop[p:]
-    coef, *_ = np.linalg.lstsq(lagged[keep], target[keep], rcond=None)
+    a, b = lagged[keep], target[keep]
+    try:  # normal equations: a 32 x 32 solve, fast; noise keeps them well conditioned
+        coef = np.linalg.solve(a.T @ a, a.T @ b)
+    except np.linalg.LinAlgError:  # singular (e.g. a noise-free, exactly periodic record)
+        coef = np.linalg.lstsq(a, b, rcond=None)[0]
     return np.concatenate((np.zeros(p), target - lagged @ coef))
 
 
@@ -220,7 +224,7 @@ def _from_response(hit: Hit, th: Mapping[str, Any], out: Outcome) -> Outcome:
 def double_hit(hit: Hit, th: Mapping[str, Any]) -> Outcome:
     """Double-hit measure and finding of one hit (see the module notes)."""
     out = Outcome({"double_hit_ratio": NAN, "double_hit_delay_s": NAN})
-    if hit.force is None:
+    if hit.pulse is None:  # no force record, or a dead (flat) one: judge the response
         return _from_response(hit, th, out)
     p = hit.clear_pulse
     if p is None:
