@@ -716,3 +716,22 @@ def test_check_hits_does_not_import_scipy_signal():
             "print(','.join(m for m in ('scipy.signal', 'plotly', 'ipywidgets') if m in sys.modules))\n")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == ""
+
+
+def test_demo_decisions_match_the_generator_truth():
+    # the demo generator records which hit bounced and which overloaded (its own truth
+    # file, written from the physics it simulated, not from the checks)
+    from modalnb import demo
+
+    truth = demo.load_demo_truth()
+    out = check_hits(demo.load_demo())
+    rejected = {int(h): str(r) for h, r, ok in zip(out["hit"].values, out["reason"].values,
+                                                  out["accepted"].values, strict=True) if not ok}
+    assert set(rejected) == {truth["double_hit"]["hit"], truth["clipped_hit"]["hit"]}
+    assert rejected[truth["double_hit"]["hit"]].startswith("double hit")
+    assert rejected[truth["clipped_hit"]["hit"]].startswith("clipping")
+    dh = out.sel(hit=truth["double_hit"]["hit"])
+    assert float(dh["double_hit_ratio"]) == pytest.approx(
+        truth["double_hit"]["second_to_first_peak_ratio"], abs=0.03)
+    assert float(dh["double_hit_delay_s"]) == pytest.approx(truth["double_hit"]["delay_s"],
+                                                            abs=2 / demo.load_demo().attrs["sample_rate"])
