@@ -167,13 +167,10 @@ def force_spectrum(
         raise RecordError(f"unknown hit {hit!r}; the hit labels are {labels}.") from None
     if "force" not in records.data_vars:
         raise RecordError(f"hit {hit}: no force record, so no force spectrum.")
-    th = {t.name: t.default for t in HIT_THRESHOLDS}
-    th.update(
-        pulse_end_fraction=next(t for t in HIT_THRESHOLDS if t.name == "pulse_end_fraction")
-        .validate(pulse_end_fraction),
-        double_hit_margin=float(double_hit_margin),
-        min_force_snr_db=-math.inf,  # the spectrum is defined whatever the force noise
-    )
+    given = {"pulse_end_fraction": pulse_end_fraction, "double_hit_margin": double_hit_margin}
+    th: dict[str, Any] = {t.name: t.validate(given.get(t.name, t.default))
+                          for t in HIT_THRESHOLDS}
+    th["min_force_snr_db"] = -math.inf  # the spectrum is defined whatever the force noise
     t = np.asarray(records["time"].values, dtype=float)
     pulse = force_pulse(np.asarray(records["force"].values[index], dtype=float), t, th)
     if pulse is None:
