@@ -4,7 +4,15 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["pulse_bounds", "contact_end"]
+__all__ = ["MAD_TO_SIGMA", "contact_end", "pulse_bounds"]
+
+#: Scale that turns a median absolute deviation into a standard deviation for Gaussian
+#: noise: 1 / Phi^-1(3/4) = 1.4826, Phi the standard normal distribution function, so that
+#: ``MAD_TO_SIGMA * median(|x - median(x)|)`` is a consistent estimator of sigma
+#: (Rousseeuw & Croux 1993, "Alternatives to the median absolute deviation", JASA 88(424),
+#: 1273-1283). The median ignores the few samples of a hammer pulse that a standard
+#: deviation would be dominated by.
+MAD_TO_SIGMA = 1.4826
 
 
 def pulse_bounds(force: np.ndarray, time: np.ndarray, *, end_fraction: float = 0.02) -> tuple[int, int, int]:
@@ -13,7 +21,7 @@ def pulse_bounds(force: np.ndarray, time: np.ndarray, *, end_fraction: float = 0
     The peak is the sample of largest absolute force. The pulse starts at the last
     sample before the peak whose magnitude is below ``end_fraction`` of the peak, and
     ends at the first sample after the peak below that level (common practice: 2-5 %
-    of the peak, ../METHODS §5). ``end`` is exclusive: ``force[start:end]`` is the pulse.
+    of the peak). ``end`` is exclusive: ``force[start:end]`` is the pulse.
 
     Parameters
     ----------
@@ -76,10 +84,9 @@ def contact_end(
     _, peak, end = pulse_bounds(force, time, end_fraction=end_fraction)
     if f.size < 3 or f[peak] == 0:
         return end
-    # robust noise level: median absolute second difference (white noise: var = 6 sigma^2);
-    # 1.4826 = 1/Phi^-1(3/4) turns a median absolute deviation into sigma for Gaussian noise
-    # (Rousseeuw & Croux 1993, "Alternatives to the median absolute deviation", JASA 88(424))
-    noise = 1.4826 * float(np.median(np.abs(np.diff(np.asarray(force, float), 2)))) / np.sqrt(6.0)
+    # robust noise level: median absolute second difference (white noise: var = 6 sigma^2;
+    # the median of |d| for zero-mean Gaussian d is its MAD, hence MAD_TO_SIGMA)
+    noise = MAD_TO_SIGMA * float(np.median(np.abs(np.diff(np.asarray(force, float), 2)))) / np.sqrt(6.0)
     level = max(fraction * f[peak], noise_factor * noise)
     above = np.nonzero(f[end:] > level)[0]
     if above.size == 0:
