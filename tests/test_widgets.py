@@ -227,6 +227,29 @@ def test_hit_panel_draws_pulse_and_spectrum(desk):
     assert len(p.resp_fig.data) == len(desk.analysis.channels)
 
 
+def test_hit_panel_shows_the_force_spectrum_the_soft_tip_check_judged(desk):
+    # issue 8 §3: one force spectrum. The check reports force_bandwidth_hz, the first
+    # frequency where the spectrum is max_rolloff_db below its 0 Hz level; the curve drawn
+    # must cross that level there (linear interpolation of the drawn points, 1 % in f).
+    p = desk.hits
+    chk = desk.analysis.checks
+    drop = float(chk.attrs["max_rolloff_db"])
+    for hit in (1, 2, 3):
+        p.show_hit.value = hit
+        f_hz = np.asarray(p.force_fig.data[1].x, float)
+        level = np.asarray(p.force_fig.data[1].y, float)
+        f_bw = float(chk["force_bandwidth_hz"].sel(hit=hit))
+        assert level[0] == pytest.approx(0.0, abs=1e-9)  # dB re the 0 Hz level
+        if np.isnan(f_bw):  # the check found no such drop up to Nyquist: neither may the curve
+            assert level.min() > -drop
+            continue
+        below = np.nonzero(level <= -drop)[0]
+        assert below.size, f"hit {hit}: the drawn spectrum never falls {drop} dB"
+        i = int(below[0])
+        f_cross = np.interp(-drop, [level[i], level[i - 1]], [f_hz[i], f_hz[i - 1]])
+        assert f_cross == pytest.approx(f_bw, rel=0.01)
+
+
 def test_status_shows_progress_during_refit(desk):
     seen = []
     stop = desk.analysis.subscribe(lambda ev, a: seen.append((ev, desk.window.status.value)))

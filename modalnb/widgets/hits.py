@@ -8,7 +8,9 @@ import numpy as np
 import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
-from .._display import PALETTE, decimate_for_display, to_db
+from .._display import PALETTE, decimate_for_display
+from .._errors import ModalnbError
+from ..checks import force_spectrum
 from ..session import Analysis
 from ._base import Panel, esc, fig_box, figure, table_html
 
@@ -112,6 +114,19 @@ class HitPanel(Panel):
             self._busy = False
         self._draw_hit()
 
+    def _force_spectrum(self, hit: int) -> tuple[np.ndarray, np.ndarray]:
+        """The force spectrum the soft-tip check judged (same window, same thresholds)."""
+        a = self.analysis
+        keys = ("pulse_end_fraction", "double_hit_margin")
+        opts = {k: v for k, v in (a.recipe.check_thresholds or {}).items() if k in keys}
+        try:
+            fr, level = force_spectrum(a.records, hit, **opts)
+        except ModalnbError:  # a flat force record: nothing to show
+            return np.array([]), np.array([])
+        finite = np.isfinite(level)
+        floor = float(level[finite].min()) if finite.any() else -300.0
+        return decimate_for_display(fr, np.where(finite, level, floor))
+
     def _draw_hit(self) -> None:
         a = self.analysis
         h = int(self.show_hit.value)
@@ -125,9 +140,7 @@ class HitPanel(Panel):
                 self.force_fig.data[0].x = t[win] * 1e3
                 self.force_fig.data[0].y = f[win]
                 self.force_fig.data[0].line.color = colour
-                spec = np.abs(np.fft.rfft(f))
-                fr = np.fft.rfftfreq(f.size, 1 / a.sample_rate)
-                fx, fy = decimate_for_display(fr, to_db(spec / max(spec.max(), 1e-300)))
+                fx, fy = self._force_spectrum(h)
                 self.force_fig.data[1].x, self.force_fig.data[1].y = fx, fy
                 self.force_fig.data[1].line.color = colour
             self.force_fig.layout.title = f"hit {h} ({'used' if accepted else 'not used'})"
