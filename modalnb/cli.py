@@ -213,7 +213,7 @@ def _truth_comparison(result: Any, truth: dict) -> str:
 def _cmd_bench(args: argparse.Namespace) -> int:
     from tqdm.std import tqdm
 
-    from . import bench
+    from .testing import bench
 
     bar = tqdm(total=0, desc="modalnb bench", unit="case", file=sys.stderr, leave=False,
                disable=not sys.stderr.isatty())

@@ -169,7 +169,7 @@ class ModeFit:
     --------
     >>> import numpy as np
     >>> from modalnb.records import records_from_arrays
-    >>> from modalnb.synth import free_decay
+    >>> from modalnb.testing.synth import free_decay
     >>> t = np.arange(2048) / 2048.0
     >>> x = free_decay(t, 50.0, 0.01) + 1e-4 * np.random.default_rng(0).standard_normal(2048)
     >>> fit = ModeFit(accept=[True]).fit(records_from_arrays(x, 2048.0))
@@ -427,7 +427,7 @@ def fit_modes(
     --------
     >>> import numpy as np
     >>> from modalnb.records import records_from_arrays
-    >>> from modalnb.synth import free_decay
+    >>> from modalnb.testing.synth import free_decay
     >>> t = np.arange(2048) / 2048.0
     >>> x = free_decay(t, [40.0, 90.0], [0.01, 0.02], [1.0, 0.5])
     >>> x = x + 1e-4 * np.random.default_rng(1).standard_normal(t.size)

@@ -4,7 +4,7 @@ the same variables and the same numbers for the same choices.
 Besides the equality of the four, each table is checked for the variables whose absence
 was the defect (``hit_warnings`` in ``fit_modes``, the ``xcheck_*`` cross-checks in
 ``ModeFit``), and the synthetic case against its closed-form truth (two modes at 40 Hz /
-1 % and 90 Hz / 2 %, ``modalnb.synth.free_decay``: x(t) = sum A e^{-zeta w t} cos(wd t)).
+1 % and 90 Hz / 2 %, ``modalnb.testing.synth.free_decay``: x(t) = sum A e^{-zeta w t} cos(wd t)).
 """
 
 from __future__ import annotations
@@ -15,7 +15,7 @@ import pytest
 from modalnb import ModeFit, Recipe, fit_modes, records_from_arrays, run_recipe
 from modalnb.demo import load_demo
 from modalnb.session import Analysis
-from modalnb.synth import free_decay
+from modalnb.testing.synth import free_decay
 
 NEEDED = {"hit_accepted", "hit_reason", "hit_warnings", "xcheck_log_decrement_damping",
           "xcheck_half_power_damping", "xcheck_hilbert_damping", "xcheck_note",

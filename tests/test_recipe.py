@@ -69,12 +69,12 @@ def test_fit_modes_replays_a_recipe_file(tmp_path):
     from modalnb import EstimationError, fit_modes
     from modalnb.estimate import SharedPoleFit
     from modalnb.records import records_from_arrays
-    from modalnb.synth import free_decay
+    from modalnb.testing.synth import free_decay
 
     fs = 1024.0
     t = np.arange(2048) / fs
     rng = np.random.default_rng(5)
-    # closed-form free decays (modalnb.synth.free_decay): 25 Hz / 2 %, 3 hits, 2 channels
+    # closed-form free decays (modalnb.testing.synth.free_decay): 25 Hz / 2 %, 3 hits, 2 channels
     clean = np.stack([free_decay(t, 25.0, 0.02, a) for a in (1.0, -0.5)])
     ds = records_from_arrays(np.stack([clean * g for g in (1.0, 0.9, 1.2)])
                              + 1e-3 * rng.standard_normal((3, 2, t.size)), fs)

@@ -20,7 +20,7 @@ from plotly.offline import get_plotlyjs
 from modalnb import records_from_arrays
 from modalnb._display import PALETTE
 from modalnb.export import report_html
-from modalnb.synth import free_decay
+from modalnb.testing.synth import free_decay
 
 CHROMIUM = shutil.which("chromium")
 ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",

@@ -257,9 +257,9 @@ def test_window_change_uses_fast_refit_and_export_a_full_fit(demo, tmp_path, mon
 
 def test_real_estimator_on_small_records():
     from modalnb.records import records_from_arrays
-    from modalnb.synth import free_decay
+    from modalnb.testing.synth import free_decay
 
-    # closed-form free decays, 40 Hz / 1 % and 90 Hz / 2 % (modalnb.synth.free_decay)
+    # closed-form free decays, 40 Hz / 1 % and 90 Hz / 2 % (modalnb.testing.synth.free_decay)
     fs = 2048.0
     t = np.arange(4096) / fs
     rng = np.random.default_rng(11)

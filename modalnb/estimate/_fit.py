@@ -407,7 +407,7 @@ class SharedPoleFit:
     --------
     >>> import numpy as np
     >>> from modalnb.records import records_from_arrays
-    >>> from modalnb.synth import free_decay
+    >>> from modalnb.testing.synth import free_decay
     >>> t = np.arange(2048) / 2048.0
     >>> x = free_decay(t, 50.0, 0.01) + 1e-4 * np.random.default_rng(0).standard_normal(2048)
     >>> eng = SharedPoleFit(accept=[True]).fit(records_from_arrays(x, 2048.0))

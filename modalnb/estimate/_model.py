@@ -90,7 +90,7 @@ def model_traces(records: xr.Dataset, result: xr.Dataset) -> xr.DataArray:
     Examples
     --------
     >>> from modalnb.records import records_from_arrays
-    >>> from modalnb.synth import free_decay
+    >>> from modalnb.testing.synth import free_decay
     >>> t = np.arange(1024) / 1024.0
     >>> ds = records_from_arrays(free_decay(t, 30.0, 0.02), 1024.0)
     >>> table = xr.Dataset({"frequency_hz": ("mode", [30.0]), "damping_ratio": ("mode", [0.02])},

@@ -136,7 +136,7 @@ def cross_checks(records: xr.Dataset, result: xr.Dataset) -> xr.Dataset:
     --------
     >>> import numpy as np
     >>> from modalnb.records import records_from_arrays
-    >>> from modalnb.synth import free_decay
+    >>> from modalnb.testing.synth import free_decay
     >>> from modalnb.estimate import SharedPoleFit
     >>> t = np.arange(8192) / 2048.0
     >>> x = free_decay(t, 50.0, 0.01) + 1e-5 * np.random.default_rng(0).standard_normal(8192)
@@ -201,7 +201,7 @@ def with_cross_checks(records: xr.Dataset, result: xr.Dataset) -> xr.Dataset:
     --------
     >>> import numpy as np
     >>> from modalnb.records import records_from_arrays
-    >>> from modalnb.synth import free_decay
+    >>> from modalnb.testing.synth import free_decay
     >>> from modalnb.estimate import SharedPoleFit
     >>> t = np.arange(4096) / 2048.0
     >>> rec = records_from_arrays(free_decay(t, 40.0, 0.02), 2048.0)
