@@ -3,9 +3,7 @@
 from __future__ import annotations
 
 import difflib
-import importlib
 from collections.abc import Iterable
-from types import ModuleType
 
 from ._errors import ModalnbError
 
@@ -20,23 +18,6 @@ def did_you_mean(name: str, options: Iterable[str]) -> str:
     """
     match = difflib.get_close_matches(str(name), [str(o) for o in options], n=1)
     return f" Did you mean {match[0]!r}?" if match else ""
-
-
-def attempt_import(module: str, purpose: str) -> ModuleType:
-    """Import `module` or raise an ``ImportError`` that says what it is needed for.
-
-    Examples
-    --------
-    >>> attempt_import("json", "reading recipes").__name__
-    'json'
-    """
-    try:
-        return importlib.import_module(module)
-    except ImportError as exc:  # pragma: no cover - depends on the environment
-        raise ImportError(
-            f"The {module} package is required for {purpose}. Please install it "
-            f"(pip install {module})."
-        ) from exc
 
 
 def check_fraction(name: str, value: float, *, low: float = 0.0, high: float = 1.0) -> float:

@@ -12,15 +12,12 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 
 from .._errors import ModalnbError
 from .._utils import check_fraction
-
-if TYPE_CHECKING:  # pragma: no cover
-    from ._hit import Hit
 
 NAN = float("nan")
 
@@ -119,6 +116,6 @@ class Check:
     """A hit check: name, measure (``run``), thresholds and output variables."""
 
     name: str
-    run: Callable[[Hit, Mapping[str, Any]], Outcome]
+    run: Callable[[Any, Mapping[str, Any]], Outcome]  # (checks._hit.Hit, thresholds)
     thresholds: tuple[Threshold, ...] = ()
     variables: tuple[Variable, ...] = ()

@@ -64,6 +64,11 @@ TEMPLATE_SAMPLES = AR_ORDER + 4
 MAX_RESPONSE_SAMPLES = 16384
 
 
+#: Finest resolution of any acquisition, relative to the record's peak: one step of a
+#: 24-bit converter (2**-24), the finest common in vibration data acquisition.
+RESOLUTION_FLOOR = 2.0**-24
+
+
 def local_peaks(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Local maxima of `x` and their topographic prominences.
 
@@ -182,6 +187,10 @@ def response_second_tap(x: np.ndarray, time: np.ndarray) -> tuple[float, float, 
         e = _prediction_error(x, drop)
         tail = e[AR_ORDER:]
         sigma = MAD_TO_SIGMA * float(np.median(np.abs(tail - np.median(tail))))
+        # no acquisition resolves finer than a 24-bit step of the record's peak: below
+        # that the "noise" is arithmetic rounding (a synthetic, noise-free record), whose
+        # structured residue must not pass for a second tap
+        sigma = max(sigma, RESOLUTION_FLOOR * float(np.max(np.abs(x))))
         main = int(np.argmax(np.abs(e)))
         lo = max(main - 2, 0)
         template = e[lo:lo + TEMPLATE_SAMPLES]
@@ -195,6 +204,11 @@ def response_second_tap(x: np.ndarray, time: np.ndarray) -> tuple[float, float, 
     energy = float(corr[lo]) - template.size * sigma**2
     noise = sigma * float(np.linalg.norm(template))
     sigmas = float(corr[second]) / noise if noise > 0 else math.inf
+    # a second tap means something only beside a main tap that itself stands out of the
+    # noise: with no visible main tap (a record that starts at the tap, inside the
+    # predictor's first AR_ORDER samples, or one without any tap) report the weaker of the two
+    main_sigmas = energy / noise if noise > 0 else (math.inf if energy > 0 else 0.0)
+    sigmas = min(sigmas, main_sigmas)
     ratio = float(corr[second]) / energy if energy > 0 else NAN
     delay = float(time[second + main - lo] - time[main])
     return ratio, delay, sigmas
