@@ -159,7 +159,10 @@ class ModeFit:
     hit_checks_ : xarray.Dataset
         The hit checks (:func:`modalnb.check_hits` layout) with the caller's decisions.
     minimizer_result_ : lmfit.MinimizerResult or None
-        The final lmfit refinement (``fit_report()`` works; parameters ``m<k>_sigma``,
+        The final refinement (scipy's trust-region reflective ``least_squares``: Branch,
+        Coleman & Li 1999, SIAM J. Sci. Comput. 21(1)) as an lmfit result (Newville et al.
+        2014, LMFIT), built the first time it is read (lmfit is imported only then;
+        ``fit_report()`` works; parameters ``m<k>_sigma``,
         ``m<k>_u`` are the packed poles of every fitted mode, including those outside the
         band or dropped from the table).
     stabilisation_ : xarray.Dataset
@@ -256,6 +259,17 @@ class ModeFit:
         self._finish(window)
         return self.result_
 
+    @property
+    def minimizer_result_(self) -> Any:
+        """The final refinement as an ``lmfit.MinimizerResult`` (None without one)."""
+        try:
+            eng = self._engine
+        except AttributeError:
+            raise AttributeError(
+                f"{type(self).__name__!r} has no 'minimizer_result_' before 'fit'"
+            ) from None
+        return eng.minimizer_result_
+
     def fit_report(self) -> str:
         """lmfit's text report of the final refinement (``lmfit.fit_report``)."""
         self._check_fitted()
@@ -293,7 +307,6 @@ class ModeFit:
     def _finish(self, window: Any) -> None:
         eng = self._engine
         self.window_ = eng.window_
-        self.minimizer_result_ = eng.minimizer_result_
         self.stabilisation_ = eng.stabilisation_
         self.result_ = finish_table(eng.result_, self.hit_checks_, self._recipe(window),
                                     self._fit_records)
@@ -416,8 +429,9 @@ def fit_modes(
        orders, kept when stable across orders and energetic (energy ranking).
     3. Refinement: variable projection (Golub & Pereyra 1973; shared poles over data
        sets, Golub & LeVeque 1979) with Kaufman's (1975) Jacobian, Levenberg-Marquardt
-       then a final lmfit ``least_squares`` pass. A mode is (sigma, u = wd^2), continuous
-       through critical damping (repeated-pole basis, Fermo et al. 2013); modes whose
+       then a final ``scipy.optimize.least_squares`` pass (trust-region reflective,
+       Branch, Coleman & Li 1999). A mode is (sigma, u = wd^2), continuous through
+       critical damping (repeated-pole basis, Fermo et al. 2013); modes whose
        energy is within noise are dropped.
     4. Residue of an oscillating mode: ``x(t) = 2 Re(r exp(lambda t))`` with t = 0 the
        record origin; of an overdamped one the residue of the slower pole; of a critical

@@ -17,7 +17,7 @@ from .._errors import EstimationError
 from ._basis import natural
 from ._pencil import PencilOutput, find_poles, initial_modes
 from ._significance import significance_threshold
-from ._varpro import Problem, covariance, levenberg_marquardt, natural_with_cov, run_lmfit
+from ._varpro import Problem, covariance, levenberg_marquardt, natural_with_cov, refine
 
 #: A fitted mode within this fraction of a frequency the user added is that added mode:
 #: a user reads a peak off a spectrum plot to a few per cent; 3 % is tighter than the 5 %
@@ -148,8 +148,9 @@ def fit_core(
     """Shared poles of the weighted signals `y` (P, N) at times `t` from the window start.
 
     With `x0` (packed poles of an earlier fit) the pencil is skipped (fast refit). With
-    ``polish=False`` the final lmfit pass is skipped (a first pass that a reweighted second
-    pass will polish); ``minimizer`` is then None. `seeds_hz` adds a starting pole (1 %
+    ``polish=False`` the final least-squares pass (:func:`._varpro.refine`, whose
+    :class:`._varpro.Refinement` is ``minimizer``) is skipped (a first pass that a
+    reweighted second pass will polish); ``minimizer`` is then None. `seeds_hz` adds a starting pole (1 %
     damping) at each frequency not already within 1 % of a found one; a mode within 3 %
     of a frequency in `protect_hz` (``ASKED_TOL``) is never dropped as weak (the user
     asked for it).
@@ -229,9 +230,11 @@ def fit_core(
             )
         idx = np.repeat(np.nonzero(keep)[0] * 2, 2) + np.tile([0, 1], int(keep.sum()))
         x = x[idx]
-    # final polish with lmfit (a converged start: few evaluations); users get its result
+    # final polish: scipy's least_squares (a converged start: few evaluations); users get
+    # it as an lmfit result, built when asked
     if polish:
-        res, x_l = run_lmfit(prob, x, max_nfev=max_nfev or 10 * (x.size + 1))
+        res = refine(prob, x, max_nfev=max_nfev or 10 * (x.size + 1))
+        x_l = res.x
         if float(np.sum(prob.residual(x_l) ** 2)) <= float(np.sum(prob.residual(x) ** 2)):
             x = x_l
             rss = full_rss(y_t_full, prob, x)

@@ -397,7 +397,10 @@ class SharedPoleFit:
     accept_ : ndarray of bool
         The hit decisions the last fit or refit used.
     minimizer_result_ : lmfit.MinimizerResult or None
-        Result of the final lmfit refinement (``fit_report()`` works; parameters
+        The final refinement (scipy's trust-region reflective ``least_squares``: Branch,
+        Coleman & Li 1999, SIAM J. Sci. Comput. 21(1)) as an lmfit result (Newville et al.
+        2014, LMFIT), built the first time it is read (lmfit is imported only then;
+        ``fit_report()`` works; parameters
         ``m<k>_sigma``, ``m<k>_u`` are the packed poles of every fitted mode, including
         those outside the band or dropped from the table).
     stabilisation_ : xarray.Dataset
@@ -461,11 +464,22 @@ class SharedPoleFit:
         self._run(self._records, window, self.accept_ if accept is None else accept, x0=self._x)
         return self.result_
 
+    @property
+    def minimizer_result_(self) -> Any:
+        """The final refinement as an ``lmfit.MinimizerResult`` (None without one)."""
+        try:
+            ref = self._refinement
+        except AttributeError:
+            raise AttributeError(
+                f"{type(self).__name__!r} has no 'minimizer_result_' before 'fit'"
+            ) from None
+        return None if ref is None else ref.minimizer_result()
+
     def fit_report(self) -> str:
         """lmfit's text report of the final refinement (``lmfit.fit_report``)."""
+        self._check_fitted()
         import lmfit
 
-        self._check_fitted()
         return lmfit.fit_report(self.minimizer_result_)
 
     def _check_fitted(self) -> None:
@@ -496,7 +510,7 @@ class SharedPoleFit:
         prep = _prepare(records, window, accept)
         core, weight = self._fit_poles(prep, asked, x0)
         self._x = core.x
-        self.minimizer_result_ = core.minimizer
+        self._refinement = core.minimizer
         if core.pencil is not None or not hasattr(self, "stabilisation_"):
             self.stabilisation_ = _stabilisation(core)
         self.result_ = self._assemble(records, prep, core, weight, band, window, asked, dropped)

@@ -12,9 +12,11 @@ where ``p`` counts the poles and every linear coefficient.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
+from .._errors import EstimationError
 from ._basis import basis_matrix, mode_columns_du, natural
 
 
@@ -186,30 +188,118 @@ def levenberg_marquardt(
     return x, it
 
 
-def run_lmfit(prob: Problem, x0: np.ndarray, max_nfev: int | None = None):
-    """Minimise the projected residual with lmfit (method "least_squares")."""
-    import lmfit
+LSQ_TOL = 1e-10
+"""ftol, xtol and gtol of the final refinement (common practice: tight, the start has converged)."""
 
-    params = lmfit.Parameters()
-    for k in range(len(x0) // 2):
-        params.add(f"m{k + 1}_sigma", value=float(x0[2 * k]))
-        params.add(f"m{k + 1}_u", value=float(x0[2 * k + 1]))
-    names = list(params)
 
-    def fcn(pars: lmfit.Parameters) -> np.ndarray:
-        x = np.array([pars[n].value for n in names])
-        return prob.residual(x)
+class _Abort(Exception):
+    """More residual evaluations than the refinement's budget."""
 
-    def dfun(pars: lmfit.Parameters) -> np.ndarray:
-        x = np.array([pars[n].value for n in names])
-        return prob.kaufman_jacobian(x)
 
-    res = lmfit.minimize(
-        fcn, params, method="least_squares", Dfun=dfun, x_scale="jac", max_nfev=max_nfev,
-        ftol=1e-10, xtol=1e-10, gtol=1e-10,
-    )
-    x = np.array([res.params[n].value for n in names])
-    return res, x
+def _finite(a: np.ndarray, what: str) -> np.ndarray:
+    a = np.asarray(a, dtype=np.float64)
+    if not np.isfinite(np.sum(a)):
+        raise EstimationError(
+            f"the {what} of the final refinement is not finite (NaN or inf). Hint: check "
+            "the records for NaN or inf samples, or narrow the window."
+        )
+    return a
+
+
+@dataclass
+class Refinement:
+    """The final refinement of the poles: its start, budget and scipy's result.
+
+    ``x`` is the point it returns; :meth:`minimizer_result` gives the same refinement as
+    an ``lmfit.MinimizerResult`` (built only when asked: importing lmfit is slow).
+    """
+
+    prob: Problem
+    x0: np.ndarray
+    max_nfev: int
+    x: np.ndarray
+    scipy_result: Any
+    aborted: bool
+    _lmfit: Any = None
+
+    def minimizer_result(self) -> Any:
+        """The refinement as lmfit reports it (``lmfit.minimize``, method "least_squares").
+
+        lmfit (Newville et al. 2014, LMFIT: Non-Linear Least-Square Minimization and
+        Curve-Fitting for Python, doi:10.5281/zenodo.11813) runs the same scipy call from
+        the same start with the same budget, so its parameters are the points of ``x``;
+        the result is kept after the first call.
+        """
+        if self._lmfit is None:
+            import lmfit
+
+            prob = self.prob
+            params = lmfit.Parameters()
+            for k in range(len(self.x0) // 2):
+                params.add(f"m{k + 1}_sigma", value=float(self.x0[2 * k]))
+                params.add(f"m{k + 1}_u", value=float(self.x0[2 * k + 1]))
+            names = list(params)
+
+            def fcn(pars: Any) -> np.ndarray:
+                return prob.residual(np.array([pars[n].value for n in names]))
+
+            def dfun(pars: Any) -> np.ndarray:
+                return prob.kaufman_jacobian(np.array([pars[n].value for n in names]))
+
+            self._lmfit = lmfit.minimize(
+                fcn, params, method="least_squares", Dfun=dfun, x_scale="jac",
+                max_nfev=self.max_nfev, ftol=LSQ_TOL, xtol=LSQ_TOL, gtol=LSQ_TOL,
+            )
+        return self._lmfit
+
+
+def refine(prob: Problem, x0: np.ndarray, max_nfev: int) -> Refinement:
+    """Minimise the projected residual from `x0` with scipy's ``least_squares``.
+
+    The trust-region reflective method (Branch, Coleman & Li 1999, "A subspace, interior,
+    and conjugate gradient method for large-scale bound-constrained minimization
+    problems", SIAM J. Sci. Comput. 21(1)), unbounded, with the Kaufman Jacobian
+    (:meth:`Problem.kaufman_jacobian`), ``x_scale="jac"`` and ftol = xtol = gtol =
+    :data:`LSQ_TOL`. The call is the one ``lmfit.minimize(..., method="least_squares")``
+    makes for unbounded parameters (scipy gets twice the budget; the fit stops at the
+    residual evaluation past `max_nfev` and returns that point, as lmfit does), so
+    :meth:`Refinement.minimizer_result` reproduces it without lmfit on the fitting path.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> t = np.arange(512) / 512.0
+    >>> y = np.exp(-2.0 * t) * np.cos(2 * np.pi * 20.0 * t)
+    >>> prob = Problem(np.ascontiguousarray(y[:, None]), t, 2 * np.pi * 100.0)
+    >>> ref = refine(prob, prob.pack([1.5], [(2 * np.pi * 20.2) ** 2]), 30)
+    >>> sigma, u = prob.unpack(ref.x)
+    >>> round(float(sigma[0]), 6), round(float(np.sqrt(u[0]) / (2 * np.pi)), 6)
+    (2.0, 20.0)
+    """
+    from scipy.optimize import least_squares
+
+    x0 = np.asarray(x0, dtype=np.float64)
+    state = {"nfev": 0, "last": x0}
+
+    def fun(x: np.ndarray) -> np.ndarray:
+        state["nfev"] += 1
+        state["last"] = x
+        if state["nfev"] > max_nfev:
+            raise _Abort
+        return _finite(prob.residual(np.array([float(v) for v in x])).ravel(), "residual")
+
+    def jac(x: np.ndarray) -> np.ndarray:
+        return _finite(prob.kaufman_jacobian(np.array([float(v) for v in x])), "Jacobian")
+
+    n = x0.size
+    try:
+        ret = least_squares(
+            fun, x0, jac=jac, bounds=(np.full(n, -np.inf), np.full(n, np.inf)), method="trf",
+            ftol=LSQ_TOL, xtol=LSQ_TOL, gtol=LSQ_TOL, x_scale="jac", max_nfev=2 * max_nfev,
+        )
+    except _Abort:
+        return Refinement(prob, x0, max_nfev, np.array(state["last"], dtype=float), None, True)
+    return Refinement(prob, x0, max_nfev, np.array(ret.x, dtype=float), ret, False)
 
 
 def covariance(prob: Problem, x: np.ndarray, rss: float, n_tot: int, n_lin: int) -> np.ndarray:
