@@ -102,6 +102,9 @@ class Scenario:
     seed : int
         Seed of ``numpy.random.default_rng`` (masses, stiffness scatter, force levels,
         noise).
+    trial : int
+        Noise realisation (force levels and noise are drawn from ``[seed, 2, trial]``; the
+        structure stays the same).
     """
 
     name: str = "chain"
@@ -120,6 +123,7 @@ class Scenario:
     window_tau_s: float | None = None
     hit_mass: int | None = None
     seed: int = 0
+    trial: int = 0
 
     @property
     def band(self) -> tuple[float, float]:
@@ -271,7 +275,7 @@ def campaign(sc: Scenario) -> tuple[Any, dict[str, Any]]:
     from ..records import records_from_arrays
 
     mdl = chain_model(sc)
-    rng = np.random.default_rng([sc.seed, 2])
+    rng = np.random.default_rng([sc.seed, 2, sc.trial])
     fs = float(sc.sample_rate)
     t0 = -round(sc.pretrigger_s * fs) / fs
     t = t0 + np.arange(int(sc.n_samples)) / fs
