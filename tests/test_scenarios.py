@@ -165,3 +165,21 @@ def test_seeded_and_suite_documented() -> None:
     assert min(s.n_masses for s in SUITE) == 4 and max(s.n_masses for s in SUITE) == 40
     assert any(s.ground_damper for s in SUITE) and any(s.close_modes for s in SUITE)
     assert any(s.window_tau_s for s in SUITE)
+
+
+def test_channel_masses_pick_the_sensors() -> None:
+    # sensors on masses 1 and 3 of the SMALL chain: the channels are exactly the
+    # solve_ivp accelerations of those masses (same reference as above)
+    sc = Scenario(**{**SMALL.as_dict(), "channel_masses": (1, 3)})
+    rec, truth = campaign(sc)
+    assert rec.sizes["channel"] == 2 and truth["masses"].tolist() == [1, 3]
+    t = rec["time"].values
+    after = t >= sc.contact_s
+    ref = _solve_ivp_acceleration(sc, t, 1.0)[[1, 3]][:, after]
+    got = rec["response"].values[0][:, after]
+    level = got.ravel() @ ref.ravel() / (ref**2).sum()
+    np.testing.assert_allclose(got, level * ref, atol=1e-6 * np.abs(level * ref).max())
+    from modalnb._errors import ModalnbError
+
+    with pytest.raises(ModalnbError, match="channel_masses"):
+        campaign(Scenario(**{**SMALL.as_dict(), "channel_masses": (7,)}))

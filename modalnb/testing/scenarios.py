@@ -99,6 +99,9 @@ class Scenario:
         Exponential window time constant (s).
     hit_mass : int or None
         Index of the struck mass (default: the free end).
+    channel_masses : tuple of int or None
+        The masses carrying the accelerometers (0-based; overrides `n_channels`); default
+        `n_channels` masses spread evenly from the grounded end to the free end.
     seed : int
         Seed of ``numpy.random.default_rng`` (masses, stiffness scatter, force levels,
         noise).
@@ -122,6 +125,7 @@ class Scenario:
     f_top_hz: float = 2500.0
     window_tau_s: float | None = None
     hit_mass: int | None = None
+    channel_masses: tuple[int, ...] | None = None
     seed: int = 0
     trial: int = 0
 
@@ -290,7 +294,17 @@ def campaign(sc: Scenario) -> tuple[Any, dict[str, Any]]:
     B = np.zeros(2 * n_dof)
     B[n_dof + hit] = 1.0 / mdl.M[hit, hit]
     c = (wl.conj().T @ B) / np.einsum("ij,ij->j", wl.conj(), vr)
-    masses = np.round(np.linspace(0, sc.n_masses - 1, int(sc.n_channels))).astype(int)
+    if sc.channel_masses is not None:
+        masses = np.asarray(sc.channel_masses, int)
+        if masses.size == 0 or masses.min() < 0 or masses.max() >= sc.n_masses:
+            from .._errors import ModalnbError
+
+            raise ModalnbError(
+                f"scenario {sc.name!r}: channel_masses must be indices 0..{sc.n_masses - 1}, "
+                f"got {sc.channel_masses!r}."
+            )
+    else:
+        masses = np.round(np.linspace(0, sc.n_masses - 1, int(sc.n_channels))).astype(int)
     phi = vr[:n_dof][masses]  # channel x kept mode
     q = _modal_coordinate(lam, t, sc.contact_s)  # per unit force peak
     pulse = np.where((t >= 0) & (t <= sc.contact_s), np.sin(np.pi * np.clip(t, 0, None) / sc.contact_s), 0.0)
