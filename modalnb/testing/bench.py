@@ -25,8 +25,8 @@ Reference methods, implemented as a test engineer would without a modal package:
 
 ``fft_halfpower``
     Power spectrum summed over all signals, zero-padded 16x; in each mode's search band
-    the peak bin is refined by a parabola through the three bins around it; the -3 dB
-    (half-power) points are found by linear interpolation between bins, searching
+    the highest local maximum is the peak, its bin refined by a parabola through the
+    three bins around it; the -3 dB (half-power) points are found by linear interpolation between bins, searching
     outward from the peak and stopping at a local minimum; ``f_n = f_peak`` and
     ``zeta = (f2 - f1) / (2 f_n)`` (one-sided width when only one point is found). For
     windowed records the light-damping correction ``zeta - 1/(tau omega_n)`` is applied.
@@ -37,8 +37,8 @@ Reference methods, implemented as a test engineer would without a modal package:
     frequency, whichever is larger, but at most half-way to the neighbouring peaks; then,
     per hit, ``scipy.optimize.curve_fit`` of one damped cosine
     ``A exp(-zeta w t) cos(w sqrt(1 - zeta^2) t + phi)`` to the STRONGEST channel only
-    (the samples after the force pulse, the first 5 % and the last 5 % of the record
-    dropped for the filter's edge transients), from four starting phases, the best fit
+    (the samples after the force pulse; about 2 / bandwidth of the filter, at most 5 % of
+    the record, dropped at each end for the filter's edge transients), from four starting phases, the best fit
     kept; the hits are combined with inverse-variance weights from ``pcov``, and the other
     channels' amplitudes follow from a linear least-squares fit at that pole. Windowed
     records get the exact pole shift ``sigma - 1/tau``.
@@ -158,9 +158,14 @@ def fft_halfpower(
         sel = np.flatnonzero((freq >= lo) & (freq <= hi))
         if sel.size < 3:
             continue
-        i0 = int(sel[np.argmax(p[sel])])
-        if i0 in (sel[0], sel[-1]) or i0 == 0:
+        # the highest local maximum inside the band (a neighbour's skirt can be higher
+        # at the band edge than a weaker mode's peak)
+        inner = sel[(sel > 0) & (sel < p.size - 1)]
+        inner = inner[(p[inner] >= p[inner - 1]) & (p[inner] >= p[inner + 1])]
+        inner = inner[(inner != sel[0]) & (inner != sel[-1])]
+        if inner.size == 0:
             continue
+        i0 = int(inner[np.argmax(p[inner])])
         a, b, c = p[i0 - 1], p[i0], p[i0 + 1]
         den = a - 2 * b + c
         d = 0.5 * (a - c) / den if den != 0 else 0.0
@@ -235,8 +240,9 @@ def curve_fit_modes(
     For each band (see the module docstring): FFT peak and half-power guess, a 4th-order
     Butterworth band-pass (``sosfiltfilt``) of every signal, then per hit
     ``scipy.optimize.curve_fit`` of ``A exp(-zeta w t) cos(w_d t + phi)`` on the hit's
-    STRONGEST channel only (from sample `start`, after the force pulse, plus 5 % of the
-    record for the filter's edge transient, to 95 % of the record), from four starting
+    STRONGEST channel only (from sample `start`, after the force pulse; about 2 /
+    bandwidth of the filter, at most 5 % of the record, dropped at each end for its edge
+    transients), from four starting
     phases (0, pi/2, pi, 3 pi/2), the best (least squares) kept; the hits' results are
     combined with inverse-variance weights from ``pcov``; the other channels' amplitudes
     follow from a linear least-squares fit of ``exp(-sigma t) [cos, sin](w_d t)`` at that
@@ -285,8 +291,6 @@ def curve_fit_modes(
     t = np.arange(n) / fs
     flat = x.reshape(-1, n)
     f0, z0 = fft_halfpower(flat[:, start:], fs, bands)  # guesses from the data itself
-    n_skip, n_fit = start + int(0.05 * n), int(0.95 * n)
-    tt = t[n_skip:n_fit]
     f_out = np.full(len(bands), np.nan)
     z_out = np.full(len(bands), np.nan)
     shapes = np.full((n_hit, n_ch, len(bands)), np.nan + 0j)
@@ -301,6 +305,11 @@ def curve_fit_modes(
                 half = min(half, abs(f0[order[nb]] - f0[k]) / 2)
         lo, hi = max(f0[k] - half, 0.5), min(f0[k] + half, 0.49 * fs)
         sos = butter(4, [lo, hi], btype="bandpass", fs=fs, output="sos")
+        # the filter's edge transients: about 2 / bandwidth at each end (a 4th-order
+        # band-pass rings for a few periods of its bandwidth; common practice), at most 5 %
+        edge = min(int(math.ceil(2 * fs / (hi - lo))), int(0.05 * n))
+        n_skip, n_fit = start + edge, n - edge
+        tt = t[n_skip:n_fit]
         y = sosfiltfilt(sos, x, axis=-1)[..., n_skip:n_fit]
         vals, wts = [], []
         for h in range(n_hit):
