@@ -229,7 +229,8 @@ def _cmd_bench(args: argparse.Namespace) -> int:
             last[0] = label
 
     try:
-        results = bench.run_bench(quick=args.quick, trials=args.trials, progress=progress)
+        results = bench.run_bench(quick=args.quick, trials=args.trials, progress=progress,
+                                  suite_trials=args.suite_trials)
     finally:
         bar.close()
     print(bench.format_bench(results))
@@ -267,11 +268,15 @@ def build_parser() -> argparse.ArgumentParser:
     _add_fit_args(pd)
     pd.set_defaults(func=_cmd_demo)
 
-    pb = sub.add_parser("bench", help="accuracy (vs the Cramér-Rao bound) and speed benchmark")
-    pb.add_argument("--quick", action="store_true", help="few trials (a smoke run, under a minute)")
+    pb = sub.add_parser("bench", help="accuracy (vs the Cramér-Rao bound) and a suite of generated "
+                        "campaigns (speed, refit, accuracy, mode list)")
+    pb.add_argument("--quick", action="store_true",
+                    help="few trials and three campaigns (a CI smoke run, about a minute)")
     pb.add_argument("--json", help="write the results as JSON to this file")
     pb.add_argument("--trials", type=int, default=None,
                     help="noise realisations per accuracy case (default 200, or 12 with --quick)")
+    pb.add_argument("--suite-trials", dest="suite_trials", type=int, default=None,
+                    help="noise realisations per generated campaign (default 2, or 1 with --quick)")
     pb.set_defaults(func=_cmd_bench)
     return p
 

@@ -1,0 +1,383 @@
+"""Generated hammer campaigns on lumped-mass chains, with truth from the eigen-solution.
+
+A scenario is a chain of ``N`` masses (mass 1 tied to the ground by a spring, each
+further mass tied to the previous one, the last end free), viscous dampers parallel to
+the springs (Rayleigh damping ``C = a M + b K``, proportional) and optionally one damper
+from mass 1 to the ground (non-proportional: complex modes) and a light side oscillator
+tuned to a chain mode (two close modes). Every number is ours: the physics is
+``M x'' + C x' + K x = f`` (any vibration text, e.g. Rao 2011, *Mechanical Vibrations*,
+5th ed., ch. 6; from memory).
+
+Truth
+    ``scipy.linalg.eig`` of the state matrix ``A = [[0, I], [-M^-1 K, -M^-1 C]]``:
+    natural frequency ``|lambda| / 2 pi``, damping ratio ``-Re(lambda) / |lambda|``, complex
+    shape = displacement half of the right eigenvector (Tisseur & Meerbergen 2001, "The
+    quadratic eigenvalue problem", SIAM Review 43(2):235-286; from memory).
+
+Response
+    Exact modal superposition from the eigen-solution (not ``lsim`` / ``solve_ivp``): with
+    left eigenvectors ``w_r`` the state is ``z(t) = sum_r v_r (w_r^H B / w_r^H v_r) q_r(t)``,
+    ``q_r(t) = int_0^t exp(lambda_r (t - s)) f(s) ds``, and for the half-sine force
+    ``f(s) = F sin(pi s / T_c)`` (0 <= s <= T_c) that integral has a closed form (written in
+    :func:`_modal_coordinate`). It is exact at every sample (no integration error, no
+    step-size choice, and cheap for 40 masses x 16 hits), and it lets the modes above the
+    band be removed exactly. Its correctness is checked in the tests against
+    ``scipy.integrate.solve_ivp`` of ``M x'' + C x' + K x = f`` on a small chain.
+
+Anti-alias filter
+    An ideal low-pass at the top of the analysed band is modelled by dropping the
+    modal terms whose damped frequency ``|Im lambda| / 2 pi`` lies above it; the kept
+    modes pass unchanged (ideal: unit gain, zero phase in the pass band). The tails of the
+    dropped modes' spectra below the cut-off are dropped with them (a small, stated
+    simplification; their truth is then simply "not in the record").
+
+Acceleration
+    ``x'' = sum_r phi_r lambda_r c_r (lambda_r q_r(t) + f(t))`` over the kept modes
+    (``phi_r`` the displacement half of ``v_r``, ``c_r = w_r^H B / w_r^H v_r``), i.e. the
+    derivative of the modal velocity, exact for the kept modes.
+
+Noise
+    White Gaussian noise per signal at the scenario's SNR (RMS of the clean response over
+    ``t >= 0`` / noise RMS, :func:`modalnb.testing.synth.add_noise`), on the whole record
+    including the pre-trigger; the force gets noise 60 dB below its peak RMS.
+    An exponential window ``exp(-t / tau)`` (``t >= 0``) is applied after the noise,
+    as an analyser does, and recorded in the ``exponential_window_tau_s`` attribute.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass, field, replace
+from typing import Any
+
+import numpy as np
+
+from .._utils import BAND_LIMIT_FRACTION
+from .synth import add_noise
+
+__all__ = ["Scenario", "ChainModel", "chain_model", "campaign", "SUITE", "QUICK_SUITE"]
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """The parameters of one generated campaign (every field has a documented default).
+
+    Parameters
+    ----------
+    name : str
+        Label in the bench tables.
+    n_masses : int
+        Chain length (4 to 40 in the suite).
+    n_channels : int
+        Accelerometers, spread evenly along the chain; with more channels than masses
+        some masses carry two sensors (independent noise).
+    n_hits : int
+        Hits, each at the same mass with a force amplitude drawn from U(0.5, 1.5).
+    sample_rate : float
+        Hz.
+    n_samples : int
+        Samples per record, pre-trigger included.
+    pretrigger_s : float
+        Record start is ``-pretrigger_s`` (the force starts at t = 0).
+    contact_s : float
+        Duration of the half-sine force (0.1-1 ms is a steel-to-hard-tip contact;
+        common practice).
+    snr_db : float
+        SNR of every response signal.
+    damping_ratio : float
+        Rayleigh damping fixed to this value at the first and the last in-band mode.
+    ground_damper : float
+        Damper from mass 1 to the ground, as a fraction of ``2 sqrt(k_1 m_1)``
+        (0 = proportional damping).
+    close_modes : bool
+        Add a side oscillator (mass 0.01 % of the chain) tuned to the second chain mode at
+        the tip mass: the pair is about 1 % apart (2-3 half-power bandwidths at 1 %).
+    f_top_hz : float
+        ``2 sqrt(k/m) / 2 pi`` of the uniform chain (its highest possible frequency);
+        together with `n_masses` it fixes how many modes fall below the band.
+    window_tau_s : float or None
+        Exponential window time constant (s).
+    hit_mass : int or None
+        Index of the struck mass (default: the free end).
+    channel_masses : tuple of int or None
+        The masses carrying the accelerometers (0-based; overrides `n_channels`); default
+        `n_channels` masses spread evenly from the grounded end to the free end.
+    seed : int
+        Seed of ``numpy.random.default_rng`` (masses, stiffness scatter, force levels,
+        noise).
+    trial : int
+        Noise realisation (force levels and noise are drawn from ``[seed, 2, trial]``; the
+        structure stays the same).
+    """
+
+    name: str = "chain"
+    n_masses: int = 8
+    n_channels: int = 8
+    n_hits: int = 4
+    sample_rate: float = 4096.0
+    n_samples: int = 4096
+    pretrigger_s: float = 0.01
+    contact_s: float = 0.4e-3
+    snr_db: float = 40.0
+    damping_ratio: float = 0.01
+    ground_damper: float = 0.0
+    close_modes: bool = False
+    f_top_hz: float = 2500.0
+    window_tau_s: float | None = None
+    hit_mass: int | None = None
+    channel_masses: tuple[int, ...] | None = None
+    seed: int = 0
+    trial: int = 0
+
+    @property
+    def band(self) -> tuple[float, float]:
+        """The analysed band: 5 Hz to ``BAND_LIMIT_FRACTION * sample_rate``."""
+        return 5.0, BAND_LIMIT_FRACTION * self.sample_rate
+
+    def as_dict(self) -> dict[str, Any]:
+        """The fields as a JSON-safe dict."""
+        return asdict(self)
+
+
+@dataclass
+class ChainModel:
+    """Mass, damping and stiffness matrices and the eigen-solution of the state matrix."""
+
+    M: np.ndarray
+    C: np.ndarray
+    K: np.ndarray
+    eigenvalues: np.ndarray  # (2n,) complex, one of each conjugate pair kept (Im > 0)
+    right: np.ndarray  # (2n, m) right eigenvectors of A for those eigenvalues
+    left: np.ndarray  # (2n, m) left eigenvectors (w^H A = lambda w^H)
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def frequency_hz(self) -> np.ndarray:
+        """Natural frequencies ``|lambda| / 2 pi`` (Hz), ascending."""
+        return np.abs(self.eigenvalues) / (2 * np.pi)
+
+    @property
+    def damping_ratio(self) -> np.ndarray:
+        """``-Re(lambda) / |lambda|``."""
+        return -self.eigenvalues.real / np.abs(self.eigenvalues)
+
+    @property
+    def shapes(self) -> np.ndarray:
+        """Complex displacement shapes (n_dof, m), each scaled to unit largest entry."""
+        phi = self.right[: self.M.shape[0]]
+        k = np.argmax(np.abs(phi), axis=0)
+        return phi / phi[k, np.arange(phi.shape[1])]
+
+    def state_matrix(self) -> np.ndarray:
+        """``[[0, I], [-M^-1 K, -M^-1 C]]``."""
+        n = self.M.shape[0]
+        mi = np.linalg.inv(self.M)
+        return np.block([[np.zeros((n, n)), np.eye(n)], [-mi @ self.K, -mi @ self.C]])
+
+
+def _matrices(sc: Scenario, rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray, int]:
+    n = int(sc.n_masses)
+    m = 1.0 * rng.uniform(0.9, 1.1, n)
+    k0 = m.mean() * (np.pi * sc.f_top_hz) ** 2  # 2 sqrt(k/m) = 2 pi f_top
+    k = k0 * rng.uniform(0.9, 1.1, n)
+    n_dof = n + (1 if sc.close_modes else 0)
+    M = np.zeros((n_dof, n_dof))
+    K = np.zeros((n_dof, n_dof))
+    M[np.arange(n), np.arange(n)] = m
+    K[0, 0] += k[0]
+    for i in range(1, n):
+        K[i - 1, i - 1] += k[i]
+        K[i, i] += k[i]
+        K[i - 1, i] -= k[i]
+        K[i, i - 1] -= k[i]
+    return M, K, n_dof
+
+
+def chain_model(sc: Scenario) -> ChainModel:
+    """The scenario's matrices and eigen-solution.
+
+    Examples
+    --------
+    >>> mdl = chain_model(Scenario(n_masses=4, f_top_hz=400.0))
+    >>> mdl.frequency_hz.size, bool(np.all(np.diff(mdl.frequency_hz) > 0))
+    (4, True)
+    """
+    import scipy.linalg
+
+    rng = np.random.default_rng([sc.seed, 1])
+    M, K, n_dof = _matrices(sc, rng)
+    n = int(sc.n_masses)
+    if sc.close_modes:
+        # side oscillator at the tip, tuned to the second mode of the bare chain
+        w2 = np.sqrt(np.sort(scipy.linalg.eigvalsh(K[:n, :n], M[:n, :n])))[min(1, n - 1)]
+        ma = 1e-4 * float(np.trace(M))
+        ka = ma * w2**2
+        M[n, n] = ma
+        K[n - 1, n - 1] += ka
+        K[n, n] += ka
+        K[n - 1, n] -= ka
+        K[n, n - 1] -= ka
+    w = np.sqrt(np.sort(scipy.linalg.eigvalsh(K, M)))
+    f_cut = 2 * np.pi * sc.band[1]
+    lo = 2 * np.pi * sc.band[0]
+    inband = w[(w > lo) & (w < f_cut)]
+    w1, w2 = (inband[0], inband[-1]) if inband.size >= 2 else (w[0], w[min(1, w.size - 1)])
+    zeta = float(sc.damping_ratio)
+    # Rayleigh: zeta(w) = a/(2w) + b w/2 equal to zeta at w1 and w2 (Chopra 2012,
+    # *Dynamics of Structures*, sect. 11.4; from memory)
+    a = 2 * zeta * w1 * w2 / (w1 + w2)
+    b = 2 * zeta / (w1 + w2)
+    C = a * M + b * K
+    if sc.ground_damper:
+        C[0, 0] += sc.ground_damper * 2 * math.sqrt(K[0, 0] * M[0, 0])
+    mi = np.linalg.inv(M)
+    A = np.block([[np.zeros((n_dof, n_dof)), np.eye(n_dof)], [-mi @ K, -mi @ C]])
+    lam, wl, vr = scipy.linalg.eig(A, left=True, right=True)
+    keep = lam.imag > 0
+    lam, wl, vr = lam[keep], wl[:, keep], vr[:, keep]
+    order = np.argsort(np.abs(lam))
+    return ChainModel(M, C, K, lam[order], vr[:, order], wl[:, order],
+                      extra={"rayleigh": (a, b)})
+
+
+def _modal_coordinate(lam: np.ndarray, t: np.ndarray, tc: float) -> np.ndarray:
+    """``q(t) = int_0^min(t,Tc) exp(lam (t-s)) sin(pi s/Tc) ds`` (0 for t < 0), closed form.
+
+    ``int_0^u exp(-lam s) sin(W s) ds = (W - exp(-lam u)(lam sin(W u) + W cos(W u)))
+    / (lam^2 + W^2)`` with ``W = pi / Tc`` (integration by parts twice).
+    """
+    W = np.pi / tc
+    tt = np.clip(t, 0.0, None)[None, :]
+    u = np.minimum(tt, tc)
+    L = lam[:, None]
+    den = L**2 + W**2
+    # exp(lam t) * (W - exp(-lam u)(...)) written without exp(-lam u) alone (no overflow)
+    q = (W * np.exp(L * tt) - np.exp(L * (tt - u)) * (L * np.sin(W * u) + W * np.cos(W * u))) / den
+    return np.where(t[None, :] >= 0, q, 0.0)
+
+
+def campaign(sc: Scenario) -> tuple[Any, dict[str, Any]]:
+    """Records of the scenario and their truth.
+
+    Returns
+    -------
+    records : xarray.Dataset
+        From :func:`modalnb.records.records_from_arrays` (response in m/s^2, force in N).
+    truth : dict
+        ``frequency_hz``, ``damping_ratio`` (the in-band modes, ascending), ``shapes``
+        (complex, channel x mode), ``residue`` (complex, hit x channel x mode: the
+        acceleration is ``2 Re(R exp(lambda t))`` after the pulse), ``noise_std``
+        (hit x channel), ``all_frequency_hz`` (every chain mode), ``masses`` (the channel
+        masses), ``scenario``.
+
+    Examples
+    --------
+    >>> rec, truth = campaign(Scenario(n_masses=4, n_channels=4, n_hits=2, f_top_hz=400.0))
+    >>> dict(rec.sizes)["hit"], len(truth["frequency_hz"])
+    (2, 4)
+    """
+    from ..records import records_from_arrays
+
+    mdl = chain_model(sc)
+    rng = np.random.default_rng([sc.seed, 2, sc.trial])
+    fs = float(sc.sample_rate)
+    t0 = -round(sc.pretrigger_s * fs) / fs
+    t = t0 + np.arange(int(sc.n_samples)) / fs
+    n_dof = mdl.M.shape[0]
+    lo, hi = sc.band
+    f_d = np.abs(mdl.eigenvalues.imag) / (2 * np.pi)
+    kept = f_d < hi  # the ideal anti-alias filter
+    inband = kept & (mdl.frequency_hz > lo)
+    lam = mdl.eigenvalues[kept]
+    vr, wl = mdl.right[:, kept], mdl.left[:, kept]
+    hit = sc.n_masses - 1 if sc.hit_mass is None else int(sc.hit_mass)
+    B = np.zeros(2 * n_dof)
+    B[n_dof + hit] = 1.0 / mdl.M[hit, hit]
+    c = (wl.conj().T @ B) / np.einsum("ij,ij->j", wl.conj(), vr)
+    if sc.channel_masses is not None:
+        masses = np.asarray(sc.channel_masses, int)
+        if masses.size == 0 or masses.min() < 0 or masses.max() >= sc.n_masses:
+            from .._errors import ModalnbError
+
+            raise ModalnbError(
+                f"scenario {sc.name!r}: channel_masses must be indices 0..{sc.n_masses - 1}, "
+                f"got {sc.channel_masses!r}."
+            )
+    else:
+        masses = np.round(np.linspace(0, sc.n_masses - 1, int(sc.n_channels))).astype(int)
+    phi = vr[:n_dof][masses]  # channel x kept mode
+    q = _modal_coordinate(lam, t, sc.contact_s)  # per unit force peak
+    pulse = np.where((t >= 0) & (t <= sc.contact_s), np.sin(np.pi * np.clip(t, 0, None) / sc.contact_s), 0.0)
+    dq = lam[:, None] * q + pulse[None, :]
+    unit = 2 * np.real((phi * (lam * c)[None, :]) @ dq)  # channel x time, per newton
+    levels = rng.uniform(0.5, 1.5, int(sc.n_hits)) * 100.0  # peak force (N)
+    clean = levels[:, None, None] * unit[None]
+    resp, sigma = add_noise(clean, sc.snr_db, rng, time=t)
+    force = levels[:, None] * pulse[None, :]
+    fsig = 1e-3 * np.sqrt(np.mean(force[:, t >= 0] ** 2, axis=-1, keepdims=True))
+    force = force + fsig * rng.standard_normal(force.shape)
+    attrs: dict[str, Any] = {}
+    if sc.window_tau_s is not None:
+        w = np.where(t >= 0, np.exp(-np.clip(t, 0, None) / sc.window_tau_s), 1.0)
+        resp = resp * w
+        attrs["exponential_window_tau_s"] = float(sc.window_tau_s)
+    rec = records_from_arrays(resp, fs, force=force, t0=t0, attrs=attrs)
+    # residues after the pulse: q = W exp(lam t)(1 + exp(-lam Tc)) / (lam^2 + W^2) for t >= Tc
+    W = np.pi / sc.contact_s
+    Q = W * (1 + np.exp(-lam * sc.contact_s)) / (lam**2 + W**2)
+    res_unit = phi * (lam**2 * c * Q)[None, :]
+    sel = inband[kept]
+    residue = levels[:, None, None] * res_unit[None][..., sel]
+    truth = {
+        "frequency_hz": mdl.frequency_hz[inband],
+        "damping_ratio": mdl.damping_ratio[inband],
+        "shapes": mdl.shapes[masses][:, inband],
+        "residue": residue,
+        "eigenvalues": mdl.eigenvalues[inband],
+        "noise_std": np.asarray(sigma),
+        "all_frequency_hz": mdl.frequency_hz,
+        "masses": masses,
+        "hit_mass": hit,
+        "scenario": sc.as_dict(),
+    }
+    return rec, truth
+
+
+def _s(name: str, **kw: Any) -> Scenario:
+    return replace(Scenario(name=name), **kw)
+
+
+#: The bench suite. Each row varies what matters from a 16-mass, 16-channel, 5-hit
+#: chain at 4096 Hz (1 s, 10 ms pre-trigger, 0.4 ms contact, 40 dB, 1 % damping).
+SUITE: tuple[Scenario, ...] = (
+    _s("base", n_masses=16, n_channels=16, n_hits=5, f_top_hz=3000.0, seed=1),
+    _s("issue-32x8", n_masses=32, n_channels=32, n_hits=8, f_top_hz=4700.0, seed=2),
+    _s("chain-4", n_masses=4, n_channels=4, n_hits=3, f_top_hz=1200.0, seed=3),
+    _s("chain-4-ground-damper", n_masses=4, n_channels=4, n_hits=3, f_top_hz=1200.0,
+       ground_damper=0.05, seed=4),
+    _s("chain-40", n_masses=40, n_channels=40, n_hits=5, f_top_hz=4000.0, seed=5),
+    _s("snr-20", n_masses=16, n_channels=16, n_hits=5, f_top_hz=3000.0, snr_db=20.0, seed=6),
+    _s("snr-50", n_masses=16, n_channels=16, n_hits=5, f_top_hz=3000.0, snr_db=50.0, seed=7),
+    _s("damping-0.2pc", n_masses=16, n_channels=16, n_hits=5, f_top_hz=3000.0,
+       damping_ratio=0.002, seed=8),
+    _s("damping-5pc", n_masses=16, n_channels=16, n_hits=5, f_top_hz=3000.0,
+       damping_ratio=0.05, seed=9),
+    _s("channels-4", n_masses=16, n_channels=4, n_hits=5, f_top_hz=3000.0, seed=10),
+    _s("channels-64", n_masses=32, n_channels=64, n_hits=3, f_top_hz=4700.0, seed=11),
+    _s("hits-16", n_masses=16, n_channels=16, n_hits=16, f_top_hz=3000.0, seed=12),
+    _s("pretrigger-0", n_masses=16, n_channels=16, n_hits=5, f_top_hz=3000.0,
+       pretrigger_s=0.0, seed=13),
+    _s("pretrigger-100ms", n_masses=16, n_channels=16, n_hits=5, f_top_hz=3000.0,
+       pretrigger_s=0.1, seed=14),
+    _s("close-modes", n_masses=16, n_channels=16, n_hits=5, f_top_hz=3000.0,
+       close_modes=True, seed=15),
+    _s("ground-damper", n_masses=16, n_channels=16, n_hits=5, f_top_hz=3000.0,
+       ground_damper=0.05, seed=16),
+    _s("exp-window", n_masses=16, n_channels=16, n_hits=5, f_top_hz=3000.0,
+       window_tau_s=0.25, seed=17),
+)
+
+#: The CI subset of :data:`SUITE` (``modalnb bench --quick``).
+QUICK_SUITE: tuple[Scenario, ...] = tuple(
+    s for s in SUITE if s.name in ("base", "chain-4-ground-damper", "close-modes")
+)
