@@ -20,8 +20,6 @@ support in :mod:`modalnb.testing`; the demo campaign in :mod:`modalnb.demo`.
 
 from __future__ import annotations
 
-from importlib.metadata import PackageNotFoundError, version
-
 from . import accessor as _accessor  # noqa: F401  (registers ds.modalnb)
 from ._errors import (
     EstimationError,
@@ -36,14 +34,11 @@ from .export import write_modal_table
 from .fitting import ModeFit, fit_modes
 from .io import open_records, save_records, segment_recording
 from .pipeline import run_recipe
-from .recipe import Recipe, load_recipe, save_recipe
+from .recipe import Recipe, load_recipe, package_version, save_recipe
 from .records import records_checksum, records_from_arrays, validate_records
 from .session import Analysis
 
-try:
-    __version__ = version("modalnb")
-except PackageNotFoundError:  # pragma: no cover - running from a source tree
-    __version__ = "0.0.0+unknown"
+__version__ = package_version()
 
 __all__ = (
     "__version__",

@@ -31,8 +31,9 @@ import xarray as xr
 from ._errors import EstimationError
 from .checks import check_hits
 from .estimate import SharedPoleFit, with_cross_checks
+from .estimate._fit import accept_decisions
 from .recipe import Recipe, load_recipe, package_version
-from .records import records_checksum, validate_records
+from .records import validate_records
 
 __all__ = ["ModeFit", "fit_modes", "finish_table", "hit_checks", "engine_records"]
 
@@ -56,12 +57,9 @@ def _overrides(records: xr.Dataset, accept: Any) -> dict[int, bool]:
                 )
             out[label] = bool(val)
         return out
-    acc = np.asarray(list(accept) if not isinstance(accept, np.ndarray) else accept)
-    if acc.shape != (len(hits),) or acc.dtype.kind not in "bi":
-        raise EstimationError(
-            f"`accept` must be a mapping hit -> bool or {len(hits)} booleans, got {accept!r}."
-        )
-    return {h: bool(a) for h, a in zip(hits, acc.tolist(), strict=True)}
+    # one decision per hit: the engine's own rule for that form
+    return {h: bool(a) for h, a in zip(hits, accept_decisions(records, accept).tolist(),
+                                        strict=True)}
 
 
 def hit_checks(
@@ -326,7 +324,7 @@ class ModeFit:
             drop_modes=list(self.drop_modes or []),
             check_thresholds=dict(self.check_thresholds or {}),
             correct_exponential_window=bool(self.correct_exponential_window),
-            records_checksum=records_checksum(self._records),
+            records_checksum=str(self._engine.result_.attrs["input_checksum"]),
             source=str(self._records.attrs.get("source", "")) or None,
         )
 

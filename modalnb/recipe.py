@@ -9,6 +9,7 @@ corrected, and the checksum of the records it was made on.
 
 from __future__ import annotations
 
+import functools
 import json
 import os
 from dataclasses import asdict, dataclass, field, fields, replace
@@ -31,6 +32,7 @@ RECIPE_FORMAT = "modalnb-recipe"
 RECIPE_VERSION = 1
 
 
+@functools.cache
 def package_version() -> str:
     """The installed modalnb version (``modalnb.__version__``), without importing the package.
 

@@ -75,8 +75,20 @@ class _Prepared:
     tau: float | None
 
 
-def _accept_decisions(records: xr.Dataset, accept: Any) -> np.ndarray:
-    """One bool per hit from the caller's decisions (the engine runs no hit checks)."""
+def accept_decisions(records: xr.Dataset, accept: Any) -> np.ndarray:
+    """One bool per hit from the caller's decisions (the engine runs no hit checks).
+
+    None uses every hit; a mapping must decide every hit; a sequence gives one bool per
+    hit. Raises a one-line :class:`EstimationError` otherwise.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from modalnb.records import records_from_arrays
+    >>> ds = records_from_arrays(np.zeros((2, 1, 32)), 64.0)
+    >>> accept_decisions(ds, [True, False]).tolist()
+    [True, False]
+    """
     hits = np.asarray(records["hit"].values)
     if accept is None:
         return np.ones(hits.size, bool)
@@ -147,7 +159,7 @@ def _prepare(records: xr.Dataset, window: Any, accept: Any) -> _Prepared:
     fs = get_sample_rate(records)
     t = np.asarray(records["time"].values, float)
     hits = np.asarray(records["hit"].values)
-    acc = _accept_decisions(records, accept)
+    acc = accept_decisions(records, accept)
     if not acc.any():
         raise EstimationError(
             f"all {hits.size} hits are rejected; nothing to fit. Hint: accept at least one "
@@ -441,10 +453,16 @@ class SharedPoleFit:
         self.add_modes = add_modes
         self.drop_modes = drop_modes
 
+    def _records_checksum(self, records: xr.Dataset) -> str:
+        if getattr(self, "_checksum", None) is None or records is not self._records:
+            self._checksum = records_checksum(records)
+        return self._checksum
+
     # ------------------------------------------------------------------ public
     def fit(self, records: xr.Dataset) -> SharedPoleFit:
         """Estimate the modes of `records` with the constructor's choices; returns self."""
         self._records = records
+        self._checksum = None  # of these records, computed once (refits reuse it)
         self._run(records, self.window, self.accept, x0=None)
         return self
 
@@ -598,7 +616,7 @@ class SharedPoleFit:
             "band": settings["band"], "window": settings["window"],
             "n_modes": -1 if self.n_modes is None else int(self.n_modes),
             "exponential_window_tau_s": -1.0 if prep.tau is None else prep.tau,
-            "input_checksum": records_checksum(records),
+            "input_checksum": self._records_checksum(records),
         }
         return ds
 

@@ -53,18 +53,6 @@ class Problem:
         r = self.data_t - q @ (q.T @ self.data_t)
         return r.ravel()
 
-    def jacobian(self, x: np.ndarray) -> np.ndarray:
-        """Central-difference Jacobian of the projected residual (N*P, n_params)."""
-        x = np.asarray(x, float)
-        cols = []
-        for i in range(x.size):
-            h = 1e-6 * max(abs(x[i]), 1e-3)
-            xp, xm = x.copy(), x.copy()
-            xp[i] += h
-            xm[i] -= h
-            cols.append((self.residual(xp) - self.residual(xm)) / (2 * h))
-        return np.stack(cols, axis=1)
-
     def _projection(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """``(Q, Q^T d, coefficients, D)`` at `x`: the pieces of Kaufman's Jacobian.
 
