@@ -28,19 +28,13 @@ from ..records import get_sample_rate, has_force, records_checksum, validate_rec
 from ._basis import is_near_critical, pole_of, residues_from_coefficients
 from ._convert import modal_conversions
 from ._core import ASKED_TOL, CoreResult, compress, fit_core
+from ._select import WEAK_FACTOR, _select_modes, fit_quality
 from ._significance import significance_threshold
 from ._varpro import Problem, levenberg_marquardt, natural_with_cov
 
 #: Fewest window samples: a pencil needs a Hankel matrix of several rows and columns per
 #: mode, and a covariance needs residual degrees of freedom (common practice).
 MIN_WINDOW_SAMPLES = 16
-
-#: A mode to drop is the fitted mode nearest the frequency given, within 5 % of it or
-#: 1 Hz, whichever is larger: a user names it from a table or chart, and 1 Hz is the
-#: frequency resolution 1/T of a one-second record, below which low modes cannot be told
-#: apart by eye (common practice).
-DROP_TOL = 0.05
-DROP_FLOOR_HZ = 1.0
 
 #: A damping ratio within 0.02 of 1 (or two standard uncertainties, if more) is
 #: reported as critical: the repeated-pole basis is used there (common practice).
@@ -55,7 +49,7 @@ MIN_CYCLES = 3.0
 FORCE_TAIL_SAMPLES = 2
 
 #: Status notes that make a mode's uncertainty unusable (the status does not start "ok").
-_BAD_NOTES = ("covariance", "poorly", "all residues")
+_BAD_NOTES = ("covariance", "damping poorly", "all residues", "weak", "model does not fit")
 
 
 @dataclass
@@ -261,9 +255,9 @@ def _blas_limit(n: int | None) -> Iterator[None]:
 
 
 # ---------------------------------------------------------------- table steps
-def _residue_fit(prep: _Prepared, core: CoreResult) -> tuple[np.ndarray, np.ndarray]:
+def _residue_fit(prep: _Prepared, core: CoreResult) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Linear coefficients of every signal (unweighted data, least squares at the final
-    poles) and R^2 per channel."""
+    poles), R^2 per channel and the residual RMS per channel."""
     n_hit_acc, n_ch, n = prep.data.shape
     phi = core.prob.basis(core.x)
     flat = prep.data.transpose(2, 0, 1).reshape(n, -1)
@@ -275,35 +269,41 @@ def _residue_fit(prep: _Prepared, core: CoreResult) -> tuple[np.ndarray, np.ndar
     tss = np.sum(dm**2, axis=(0, 1))
     rss_c = np.sum(resid**2, axis=(0, 1))
     fit_r2 = np.where(tss > 0, 1.0 - rss_c / np.where(tss > 0, tss, 1.0), 0.0)
-    return coef, fit_r2
+    return coef, fit_r2, np.sqrt(rss_c / max(n * n_hit_acc, 1))
 
 
-def _select_modes(core: CoreResult, band: tuple[float, float], dropped: Sequence[float],
-                  n_modes: int | None) -> list[int]:
-    """Indices of the fitted modes the table reports: in the band, not dropped, the
-    `n_modes` strongest; sorted by natural frequency."""
-    sel = [k for k in range(core.sigma.size) if band[0] <= core.fn[k] <= band[1]]
-    if not sel:
-        raise EstimationError(
-            f"no mode found in the band {band[0]:g}..{band[1]:g} Hz (modes fitted at "
-            f"{', '.join(f'{f:.4g}' for f in core.fn)} Hz). Hint: widen the band."
-        )
-    for f in dropped:
-        # the user leaves the fitted mode nearest f out of the table (it stays in the model)
-        near = min(sel, key=lambda k: abs(core.fn[k] - f)) if sel else None
-        if near is None or abs(core.fn[near] - f) > max(DROP_TOL * f, DROP_FLOOR_HZ):
-            raise EstimationError(
-                f"drop_modes: no fitted mode near {f:g} Hz (within 5 %; modes at "
-                f"{', '.join(f'{core.fn[k]:.4g}' for k in sorted(sel, key=lambda k: core.fn[k]))} Hz). "
-                f"Hint: remove {f:g} from the dropped modes."
-            )
-        sel.remove(near)
-    if not sel:
-        raise EstimationError("every mode in the band was dropped (drop_modes). Hint: "
-                              "keep at least one.")
-    if n_modes is not None:
-        sel = sorted(sel, key=lambda k: -core.significance[k])[: int(n_modes)]
-    return sorted(sel, key=lambda k: core.fn[k])
+def _fit_quality(prep: _Prepared, core: CoreResult, resid_rms: np.ndarray
+                 ) -> tuple[np.ndarray, dict[str, Any]]:
+    """Residual RMS over the pre-trigger noise per channel (NaN without pre-trigger noise
+    or for a dead channel) and the whole fit's quality (:func:`._select.fit_quality`)."""
+    noise_known = prep.noise_from == "pre-trigger samples"
+    ratio = np.full(prep.live.size, np.nan)
+    if noise_known:
+        ratio[prep.live] = resid_rms[prep.live] * prep.weight[prep.live]
+    phi = core.prob.basis(core.x)
+    d = core.prob.data_t
+    c, *_ = np.linalg.lstsq(phi, d, rcond=None)
+    quality = fit_quality(ratio[prep.live], noise_known, d - phi @ c)
+    return ratio, quality
+
+
+def _aside_variables(core: CoreResult, aside: list[tuple[int, str]]) -> dict[str, Any]:
+    """The poles set aside (residual terms kept in the model, not modes), dim ``aside_pole``."""
+    idx = [k for k, _ in aside]
+    reason = np.array([r for _, r in aside], dtype=object)
+
+    def take(a: np.ndarray) -> np.ndarray:
+        return np.asarray(a, float)[idx] if idx else np.zeros(0)
+
+    return {
+        "aside_frequency_hz": ("aside_pole", take(core.fn), {"units": "Hz"}),
+        "aside_damping_ratio": ("aside_pole", take(core.zeta), {"units": "1"}),
+        "aside_frequency_hz_std": ("aside_pole", take(core.fn_std), {"units": "Hz"}),
+        "aside_energy": ("aside_pole", take(core.significance), {
+            "units": "1", "description": "fitted energy over the noise variance"}),
+        "aside_reason": ("aside_pole", reason, {
+            "description": "why the pole is a residual term of the model, not a mode"}),
+    }
 
 
 def _regime(z: float, zstd: float) -> str:
@@ -591,8 +591,10 @@ class SharedPoleFit:
     ) -> xr.Dataset:
         """The engine's table: per-mode values, shapes, residues, per-channel fit quality."""
         n_ch = prep.data.shape[1]
-        coef, fit_r2 = _residue_fit(prep, core)
-        sel = _select_modes(core, band, dropped, self.n_modes)
+        coef, fit_r2, resid_rms = _residue_fit(prep, core)
+        t_len = float(prep.t_win[-1] - prep.t_win[0]) + 1.0 / prep.fs
+        sel, aside = _select_modes(core, band, dropped, self.n_modes, t_len, prep.fs, asked)
+        noise_ratio, quality = _fit_quality(prep, core, resid_rms)
         scat_f, scat_z = self._per_hit_scatter(prep, core, weight)
         use_force = has_force(records)
         sign = np.ones(n_ch)
@@ -605,12 +607,20 @@ class SharedPoleFit:
             "hit_res": np.full((m, prep.hits.size, n_ch), np.nan, complex),
             "ch_res": np.zeros((m, n_ch), complex), "shape_amp": np.zeros((m, n_ch)),
             "shape_ph": np.zeros((m, n_ch)), "status": [], "regime": [],
+            "fit_note": quality["note"],
         }
         for i, k in enumerate(sel):
             self._mode_row(i, k, records, prep, core, coef, asked, use_force, sign,
                            (scat_f, scat_z), cols, per_mode)
         ds = self._dataset(records, prep, cols, per_mode, fit_r2, use_force)
+        ds = ds.assign(_aside_variables(core, aside))
+        ds["residual_noise_ratio"] = ("channel", noise_ratio, {
+            "description": "residual RMS over the pre-trigger noise (NaN without pre-trigger "
+                           "noise); about 1 when the model fits"})
         settings = self._settings(prep, core, band, window, asked, dropped, cols)
+        settings["fit_quality"] = {k: v for k, v in quality.items() if k != "note"}
+        settings["fit_quality"]["note"] = quality["note"] or "ok"
+        settings["poles_set_aside"] = len(aside)
         ds.attrs = {
             "settings": json.dumps(settings),
             "band": settings["band"], "window": settings["window"],
@@ -650,7 +660,14 @@ class SharedPoleFit:
             fstd = fstd if np.isfinite(fstd) else float("nan")
             notes.append("covariance singular: uncertainties undefined")
         elif zstd > 0.5 * z:
-            notes.append("poorly determined: damping_ratio_std exceeds half the damping ratio")
+            notes.append("damping poorly determined: damping_ratio_std exceeds half the "
+                         "damping ratio")
+        thr = significance_threshold(core.prob.data_t.shape[1])
+        if core.significance[k] < WEAK_FACTOR * thr:
+            notes.append(f"weak: energy {core.significance[k]:.3g} within 20 dB of the noise "
+                         f"significance limit {thr:.3g}")
+        if per_mode["fit_note"]:
+            notes.append(per_mode["fit_note"])
         if asked.size and np.any(np.abs(fn - asked) < ASKED_TOL * asked):
             notes.append("added by the user (add_modes)")
             if core.significance[k] < significance_threshold(core.prob.data_t.shape[1]):
