@@ -28,6 +28,7 @@ from ..records import get_sample_rate, has_force, records_checksum, validate_rec
 from ._basis import is_near_critical, pole_of, residues_from_coefficients
 from ._convert import modal_conversions
 from ._core import ASKED_TOL, CoreResult, compress, fit_core
+from ._pencil import STABLE_MAC
 from ._select import WEAK_FACTOR, _select_modes, fit_quality
 from ._significance import significance_threshold
 from ._varpro import Problem, levenberg_marquardt, natural_with_cov
@@ -214,7 +215,7 @@ def _force_spectrum(records: xr.Dataset, prep: _Prepared, lam: complex) -> np.nd
 
 def _stabilisation(core: CoreResult) -> xr.Dataset:
     rows = core.pencil.rows if core.pencil is not None else []
-    arr = np.array(rows, dtype=float).reshape(-1, 7)
+    arr = np.array(rows, dtype=float).reshape(-1, 8)
     return xr.Dataset(
         {
             "pencil_pass": ("pole", arr[:, 0].astype(int)),
@@ -226,11 +227,18 @@ def _stabilisation(core: CoreResult) -> xr.Dataset:
             "significance": ("pole", arr[:, 6], {"long_name": "pole energy over the residual "
                                                  "variance of its order's fit (NaN in an order "
                                                  "without a stable pole)"}),
+            "mac": ("pole", arr[:, 7], {"long_name": "MAC of the pole's shape with the matched "
+                                        "pole of the previous order (Allemang & Brown 1982; "
+                                        "NaN without a pole within 1 % in frequency)"}),
+            "stable_shape": ("pole", arr[:, 5].astype(bool) & (arr[:, 7] >= STABLE_MAC), {
+                "long_name": "stable in frequency, damping, energy and shape (MAC >= 0.9)"}),
         },
         attrs={"description": "poles versus pencil order; pass 0 is the wide-band pass, "
                "passes 1.. the sub-bands; stable = a pole of the previous order within 1 % in "
                "natural frequency and 5 % in damping ratio (common practice), and energy "
-               "above the candidate significance limit"},
+               "above the candidate significance limit; stable_shape = stable and a shape MAC "
+               ">= 0.9 with that pole (common practice); shapes are the pole's coefficients "
+               "over the pass's leading signal components"},
     )
 
 

@@ -45,8 +45,10 @@ class PencilOutput:
     candidates: list[Candidate] = field(default_factory=list)
     # rows of (pass id, order, frequency_hz (damped), natural_hz, damping_ratio, stable,
     # significance = pole energy over the residual variance of that order's fit; NaN in an
-    # order without a stable pole, where it is not needed)
-    rows: list[tuple[int, int, float, float, float, bool, float]] = field(default_factory=list)
+    # order without a stable pole, where it is not needed; mac = MAC of the pole's shape
+    # with that of the matched pole of the previous order, NaN without a match)
+    rows: list[tuple[int, int, float, float, float, bool, float, float]] = field(
+        default_factory=list)
 
 
 def _signal_space(sig: np.ndarray, k_rows: int, n_vec: int) -> tuple[np.ndarray, np.ndarray]:
@@ -69,6 +71,37 @@ def _shift_poles(u: np.ndarray) -> np.ndarray:
     """Discrete poles from the shift invariance of the column space (least squares)."""
     psi, *_ = np.linalg.lstsq(u[:-1], u[1:], rcond=None)
     return np.linalg.eigvals(psi)
+
+
+def _shift_poles_shapes(u: np.ndarray, first: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Discrete poles and their shapes over the signals, (m,) and (m, P).
+
+    The Hankel columns span ``A = [a(z_1) ... a(z_m)]`` with ``a(z) = (1, z, z^2, ...)``;
+    with ``psi = T diag(z) T^-1`` the eigen-decomposition of the shift matrix, ``A = U T D``
+    for some diagonal D, so the first Hankel column of signal p, ``sum_i a(z_i) r_pi``,
+    gives ``r_p = D^-1 T^-1 U^H first_p``: each pole's coefficients over the signals up to
+    one factor per pole, which the MAC ignores. `first` is (k_rows, P).
+    """
+    psi, *_ = np.linalg.lstsq(u[:-1], u[1:], rcond=None)
+    z, t = np.linalg.eig(psi)
+    try:
+        shapes = np.linalg.solve(t, u.conj().T @ first)
+    except np.linalg.LinAlgError:
+        shapes = np.full((z.size, first.shape[1]), np.nan, complex)
+    return z, shapes
+
+
+#: Shapes of a pole at successive orders agree when their MAC is at least 0.9 (common
+#: practice for stabilisation charts; MAC of Allemang & Brown 1982).
+STABLE_MAC = 0.9
+
+
+def _mac(a: np.ndarray, b: np.ndarray) -> float:
+    """Modal assurance criterion ``|a^H b|^2 / (a^H a b^H b)`` of two complex vectors
+    (Allemang & Brown 1982, "A correlation coefficient for modal vector analysis", Proc.
+    1st IMAC)."""
+    den = float(np.vdot(a, a).real * np.vdot(b, b).real)
+    return float(abs(np.vdot(a, b)) ** 2 / den) if den > 0 else float("nan")
 
 
 def _energies(sig: np.ndarray, z: np.ndarray) -> tuple[np.ndarray, float]:
@@ -115,23 +148,29 @@ def _sweep(
         sig = v[:, np.argsort(w)[::-1][:8]].conj().T @ sig
     u, _sv = _signal_space(sig, k_rows, max(orders))
     prev: np.ndarray | None = None
+    prev_shape: np.ndarray | None = None
     per_order: list[np.ndarray] = []
+    first = sig[:, :k_rows].T  # first Hankel column of each signal
     for m in orders:
-        z = _shift_poles(u[:, :m])
+        z, shape = _shift_poles_shapes(u[:, :m], first)
         with np.errstate(divide="ignore"):
             lam = np.log(z.astype(complex)) / dt + 1j * TWO_PI * shift_hz
         keep = (np.abs(z) < 1.0) & (np.abs(z) > 0)
         if real_data:
             keep &= lam.imag >= -1e-9 * np.abs(lam)
-        lam = lam[keep]
+        lam, shape = lam[keep], shape[keep]
         fn, zeta = _natural(lam)
         # stable for the chart (common practice): a pole of the previous order within 1 % in
-        # natural frequency and 5 % in damping ratio (frequency alone marks noise poles too)
+        # natural frequency and 5 % in damping ratio (frequency alone marks noise poles too);
+        # its shape MAC with that pole is kept beside (the chart's shape criterion)
         stable = np.zeros(lam.size, bool)
+        mac = np.full(lam.size, np.nan)
         if prev is not None and prev.size:
             pfn, pz = _natural(prev)
             for i in range(lam.size):
                 j = int(np.argmin(np.abs(pfn - fn[i])))
+                if abs(pfn[j] - fn[i]) <= 0.01 * fn[i]:
+                    mac[i] = _mac(shape[i], prev_shape[j])
                 stable[i] = (abs(pfn[j] - fn[i]) <= 0.01 * fn[i]
                              and abs(pz[j] - zeta[i]) <= 0.05 * max(zeta[i], 1e-4))
         # pole energies only where the chart needs them (an order with a stable pole)
@@ -139,11 +178,12 @@ def _sweep(
         if stable.any():
             e_m, v_m = _energies(sig, np.exp((lam - 1j * TWO_PI * shift_hz) * dt))
             signif = e_m / max(v_m, 1e-300)
-        for lk, f, zz, st, sg in zip(lam, fn, zeta, stable, signif, strict=True):
+        for lk, f, zz, st, sg, mc in zip(lam, fn, zeta, stable, signif, mac, strict=True):
             out.rows.append((pass_id, m, float(lk.imag / TWO_PI), float(f), float(zz), bool(st),
-                             float(sg)))
+                             float(sg), float(mc)))
         per_order.append(lam)
         prev = lam
+        prev_shape = shape
     # candidates: top-order poles that reappear (within tolerance) in the two orders below
     top = per_order[-1]
     if top.size == 0:
@@ -258,7 +298,7 @@ def find_poles(
     out.candidates = [c for c in out.candidates if c.significance >= min_significance]
     # the chart calls a pole stable only when it also carries energy above the same limit
     # (noise poles of an over-specified order can be stable in frequency and damping)
-    out.rows = [(*r[:5], bool(r[5] and r[6] >= min_significance), r[6]) for r in out.rows]
+    out.rows = [(*r[:5], bool(r[5] and r[6] >= min_significance), *r[6:]) for r in out.rows]
     return out
 
 
