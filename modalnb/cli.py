@@ -156,7 +156,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     out = Path(args.out)
     result, _ = _fit_and_write(ds, recipe, out, steps, title=f"modalnb: {args.source}")
     print(format_modal_table(result))
-    print(f"wrote modes.csv, shapes.csv, hits.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
+    print(f"wrote modes.csv, shapes.csv, hits.csv, poles_set_aside.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
     print(CAUTION)
     return 0
 
@@ -181,7 +181,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     print(format_modal_table(result))
     print()
     print(_truth_comparison(result, truth))
-    print(f"wrote modes.csv, shapes.csv, hits.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
+    print(f"wrote modes.csv, shapes.csv, hits.csv, poles_set_aside.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
     print(CAUTION)
     return 0
 

@@ -19,6 +19,7 @@ import xarray as xr
 from .._display import PALETTE, decimate_for_display
 from .._errors import ModalnbError
 from .._files import atomic_write_text
+from ._aside import ASIDE_COLUMNS, ASIDE_TITLE, aside_rows
 from ._rows import CAUTION, hits_rows, modes_rows
 
 __all__ = ["write_report", "report_html"]
@@ -183,6 +184,12 @@ code{{background:{pal.header};padding:0 .2em}}
         "<p>Amplitude normalised to 1 on the largest channel, phase in degrees relative to it; "
         "sensor direction signs removed.</p>",
         _table(s_rows, ["mode", "channel", "amplitude", "phase_deg"], "shapes"),
+        f"<h2>{_e(ASIDE_TITLE)}</h2>",
+        "<p>Fitted poles that are residual terms of the model, not modes (they absorb the "
+        "force pulse, an offset, out-of-band modes or noise; they stay in the model so the "
+        "modes' numbers do not change), each with the reason.</p>",
+        _table(aside_rows(result), list(ASIDE_COLUMNS), "aside") if aside_rows(result)
+        else "<p><i>none</i></p>",
         "<h2>Hit decisions</h2>",
         _table(h_rows, ["hit", "accepted", "reason", "warnings"], "hits"),
         "<h2>Figures</h2>",

@@ -7,6 +7,9 @@ Files written by :func:`write_modal_table` (the contract other tools rely on):
 * ``shapes.csv`` — ``mode,channel,amplitude,phase_deg``, then the other per-(mode, channel)
   quantities;
 * ``hits.csv``   — ``hit,accepted,reason,warnings`` (``accepted`` is ``true``/``false``);
+* ``poles_set_aside.csv`` — ``pole,frequency_hz,damping_ratio,frequency_hz_std,energy,reason``:
+  the fitted poles that are residual terms, not modes (always written; header only when
+  there are none);
 * ``modes.nc`` (the result Dataset), ``modes.json`` (everything above), ``recipe.json``.
 
 All files of one call are first written to temporary files in the output folder and then
@@ -27,6 +30,7 @@ import xarray as xr
 
 from .._files import staged_files
 from ..recipe import Recipe
+from ._aside import ASIDE_COLUMNS, aside_rows
 from ._rows import (
     CAUTION,
     HIT_COLUMNS,
@@ -109,6 +113,7 @@ def write_modal_table(
         "modes.csv": _csv_text(m_rows, _columns(m_rows, MODE_COLUMNS)),
         "shapes.csv": _csv_text(s_rows, _columns(s_rows, SHAPE_COLUMNS)),
         "hits.csv": _csv_text(h_rows, list(HIT_COLUMNS)),
+        "poles_set_aside.csv": _csv_text(aside_rows(result), list(ASIDE_COLUMNS)),
         "modes.json": json.dumps(
             _json_safe(
                 {
@@ -117,6 +122,7 @@ def write_modal_table(
                     "modes": m_rows,
                     "shapes": s_rows,
                     "hits": h_rows,
+                    "poles_set_aside": aside_rows(result),
                 }
             ),
             indent=2,

@@ -6,6 +6,7 @@ import math
 
 import xarray as xr
 
+from ._aside import ASIDE_TITLE, aside_rows
 from ._rows import _value
 
 __all__ = ["format_modal_table"]
@@ -13,6 +14,9 @@ __all__ = ["format_modal_table"]
 
 def format_modal_table(result: xr.Dataset) -> str:
     """The modal table as aligned text with units in the header (for the terminal).
+
+    When the fit set poles aside (residual terms, not modes), a second table
+    "Poles set aside (not modes)" follows with the reason for each.
 
     Examples
     --------
@@ -51,7 +55,26 @@ def format_modal_table(result: xr.Dataset) -> str:
             g("regime"),
             g("status"),
         ])
+    lines = _aligned(header, rows)
+    aside = aside_rows(result)
+    if aside:
+        lines += ["", f"{ASIDE_TITLE}: residual terms kept in the model, left out of the table",
+                  *_aligned(["pole", "f_n [Hz]", "± [Hz]", "zeta [%]", "reason"], [
+                      [str(r["pole"]), _num(r["frequency_hz"], "{:.6g}"),
+                       _num(r["frequency_hz_std"], "{:.2g}"),
+                       _num(r["damping_ratio"], "{:.4g}", 100), str(r["reason"])]
+                      for r in aside])]
+    return "\n".join(lines)
+
+
+def _num(v: object, fmt: str, scale: float = 1.0) -> str:
+    if isinstance(v, (int, float)):
+        return "nan" if math.isnan(float(v)) else fmt.format(float(v) * scale)
+    return str(v)
+
+
+def _aligned(header: list[str], rows: list[list[str]]) -> list[str]:
     widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(header)]
     lines = ["  ".join(h.ljust(w) for h, w in zip(header, widths, strict=True)).rstrip()]
     lines += ["  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip() for r in rows]
-    return "\n".join(lines)
+    return lines

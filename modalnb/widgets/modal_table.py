@@ -1,5 +1,5 @@
 """Panel 5, modal table: natural frequencies and damping ratios with their uncertainties,
-shapes, MAC between modes and between hits, the shape plot (3-D from the node coordinates
+the poles set aside (residual terms, not modes) with their reasons, shapes, MAC between modes and between hits, the shape plot (3-D from the node coordinates
 when present), exports and "save recipe"."""
 
 from __future__ import annotations
@@ -11,6 +11,7 @@ import ipywidgets as w
 import numpy as np
 
 from .._display import PALETTE
+from ..export._aside import ASIDE_TITLE, aside_rows
 from ..session import Analysis
 from ._base import Panel, esc, fig_box, figure, mode_rows, table_html
 
@@ -39,6 +40,37 @@ def _mac_heatmap(fig: Any) -> None:
                     colorbar={"title": "MAC"}, texttemplate="%{z:.2f}")
 
 
+def _aside_html(result: Any) -> str:
+    """The poles set aside as a small table (rounded as an engineer writes them), or ''.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> ds = xr.Dataset({"aside_frequency_hz": ("aside_pole", [812.512]),
+    ...                  "aside_frequency_hz_std": ("aside_pole", [3.14159]),
+    ...                  "aside_damping_ratio": ("aside_pole", [0.0123]),
+    ...                  "aside_energy": ("aside_pole", [233.7]),
+    ...                  "aside_reason": ("aside_pole", ["too weak"])})
+    >>> "812.512" in _aside_html(ds), "3.1" in _aside_html(ds), _aside_html(xr.Dataset())
+    (True, True, '')
+    """
+    rows = aside_rows(result)
+    if not rows:
+        return ""
+
+    def num(v: Any, spec: str, scale: float = 1.0) -> str:
+        return "–" if not isinstance(v, (int, float)) or np.isnan(v) else format(v * scale, spec)
+
+    shown = [{"pole": r["pole"], "f": num(r["frequency_hz"], ".6g"),
+              "fstd": num(r["frequency_hz_std"], ".2g"), "z": num(r["damping_ratio"], ".3g", 100),
+              "e": num(r["energy"], ".3g"), "reason": r["reason"]} for r in rows]
+    return (f"<b>{esc(ASIDE_TITLE)}</b>: residual terms kept in the model (the modes' numbers "
+            "do not depend on leaving them out of the table)" + table_html(shown, [
+                ("pole", "pole"), ("f", "frequency [Hz]"), ("fstd", "± std [Hz]"),
+                ("z", "damping [%]"), ("e", "energy / noise"), ("reason", "reason")],
+                "modalnb-aside-rows", "modalnb-aside"))
+
+
 class TablePanel(Panel):
     """The modal table, shapes, MAC matrices, shape plot, exports and 'save recipe'."""
 
@@ -55,6 +87,8 @@ class TablePanel(Panel):
             out_dir = base / f"{stem}-modal-table"
         self.modes = w.HTML()
         self.modes.add_class("modalnb-modes-table")
+        self.aside = w.HTML()
+        self.aside.add_class("modalnb-aside-table")
         self.shapes = w.HTML()
         self.shapes.add_class("modalnb-shapes-table")
         self.mode = w.Dropdown(options=[1], value=1, description="mode")
@@ -80,7 +114,7 @@ class TablePanel(Panel):
         self._finish([
             w.HTML("<b>Modal table.</b> Frequencies and damping ratios with their standard "
                    "uncertainties; shapes normalised to 1 on the largest channel."),
-            self.modes, self.shapes,
+            self.modes, self.aside, self.shapes,
             w.HBox([fig_box(self.mac_fig, "modalnb-mac-figure")]),
             self.mode, w.HBox([fig_box(self.hitmac_fig, "modalnb-hitmac-figure"),
                                fig_box(self.shape_fig, "modalnb-shape-figure")]),
@@ -136,6 +170,7 @@ class TablePanel(Panel):
             ("mode", "mode"), ("frequency_hz", "natural frequency [Hz]"), ("frequency_hz_std", "± std [Hz]"),
             ("damping_ratio", "damping ratio"), ("damping_ratio_std", "± std"), ("regime", "regime"),
             ("q_factor", "Q"), ("status", "status")], "modalnb-mode-rows", "modalnb-mode")
+        self.aside.value = _aside_html(r)
         modes = r["mode"].values.tolist()
         amp, ph = r["shape_amplitude"].values, r["shape_phase_deg"].values
         srows = []
