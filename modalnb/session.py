@@ -453,6 +453,15 @@ class Analysis:
         return (np.asarray(st["order"].values, float), np.asarray(st["frequency_hz"].values, float),
                 np.asarray(st["stable"].values, bool))
 
+    def stabilisation_table(self) -> xr.Dataset | None:
+        """The engine's poles versus order as a Dataset (dim ``pole``: ``order``,
+        ``frequency_hz``, ``damping_ratio``, ``stable``, ``mac``, ``stable_shape``, ...), or
+        None when the engine gives no such data (see ``SharedPoleFit.stabilisation_``)."""
+        st = getattr(self._estimator, "stabilisation_", None)
+        if st is None or "order" not in st or st.sizes.get("pole", 0) == 0:
+            return None
+        return st
+
     def shapes(self) -> np.ndarray:
         """Complex shapes (mode, channel) from amplitude and phase of the result."""
         assert self.result is not None

@@ -62,8 +62,11 @@ class ModesPanel(Panel):
                            title="poles versus model order")
         self.stab.add_scatter(x=[], y=[], mode="markers", name="pole seen once",
                               marker={"symbol": "circle-open", "color": PALETTE.once, "size": 6})
-        self.stab.add_scatter(x=[], y=[], mode="markers", name="stable across orders",
-                              marker={"symbol": "diamond", "color": PALETTE.stable, "size": 7})
+        self.stab.add_scatter(x=[], y=[], mode="markers", name="stable in frequency and damping",
+                              marker={"symbol": "diamond-open", "color": PALETTE.stable, "size": 7})
+        self.stab.add_scatter(x=[], y=[], mode="markers",
+                              name="stable in frequency, damping and shape (MAC ≥ 0.9)",
+                              marker={"symbol": "diamond", "color": PALETTE.stable, "size": 8})
         self.stab_note = w.HTML()
         # add or drop a mode by frequency: type it, or click on the spectrum to fill the box
         self.mode_freq = w.BoundedFloatText(value=0.0, min=0.0, max=nyq, step=0.1,
@@ -155,20 +158,35 @@ class ModesPanel(Panel):
     def _draw_stabilisation(self) -> None:
         a = self.analysis
         r = a.result
-        stab = a.stabilisation()
+        st = a.stabilisation_table()
         with self.stab.batch_update():
-            if stab is None:
-                self.stab.data[0].x = self.stab.data[0].y = []
-                self.stab.data[1].x = self.stab.data[1].y = []
+            if st is None:
+                for tr in self.stab.data:
+                    tr.x = tr.y = []
                 self.stab_note.value = "<i>This estimation engine gives no poles-versus-order data.</i>"
                 return
-            order, freq, stable = stab
-            self.stab.data[0].x, self.stab.data[0].y = freq[~stable], order[~stable]
-            self.stab.data[1].x, self.stab.data[1].y = freq[stable], order[stable]
+            order = np.asarray(st["order"].values, float)
+            freq = np.asarray(st["frequency_hz"].values, float)
+            stable = np.asarray(st["stable"].values, bool)
+            zeta = (np.asarray(st["damping_ratio"].values, float) if "damping_ratio" in st
+                    else np.full(freq.size, np.nan))
+            mac = np.asarray(st["mac"].values, float) if "mac" in st else np.full(freq.size, np.nan)
+            shape_ok = (np.asarray(st["stable_shape"].values, bool) if "stable_shape" in st
+                        else np.zeros(freq.size, bool))
+            hover = ("f_n %{x:.5g} Hz, order %{y}<br>ζ %{customdata[0]:.3g} %"
+                     "<br>MAC with the previous order %{customdata[1]}<extra></extra>")
+            for tr, sel in zip(self.stab.data, (~stable, stable & ~shape_ok, shape_ok), strict=True):
+                tr.x, tr.y = freq[sel], order[sel]
+                tr.customdata = [[float(z), "–" if np.isnan(v) else f"{v:.3f}"]
+                                 for z, v in zip(100 * zeta[sel], mac[sel], strict=True)]
+                tr.hovertemplate = hover
             # the fitted modes as dashed lines: columns of stable poles should line up
             fk = r["frequency_hz"].values if r is not None and r.sizes.get("mode", 0) else []
             self.stab.layout.shapes = [
                 dict(type="line", xref="x", yref="paper", x0=float(f0), x1=float(f0), y0=0, y1=1,
                      line={"color": PALETTE.mode, "width": 1, "dash": "dash"}) for f0 in fk]
             self.stab_note.value = ("<i>dashed: fitted modes. Lower orders are the narrow "
-                                    "sub-band pencils, higher orders the wide-band one.</i>")
+                                    "sub-band pencils, higher orders the wide-band one. Stable: a "
+                                    "pole of the previous order within 1 % in frequency and 5 % "
+                                    "in damping ratio, with energy above the noise; filled "
+                                    "diamonds also keep their shape (MAC ≥ 0.9).</i>")
