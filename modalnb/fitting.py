@@ -411,10 +411,14 @@ def fit_modes(
         ``shape_phase_deg``, ``residue_real``/``residue_imag`` (per unit force, integrated
         force spectrum at the pole, where force exists). Over (mode, hit, channel):
         ``hit_residue_real``/``_imag`` (NaN for rejected hits). Over channel: ``fit_r2``,
-        ``channel_note``. Over hit: ``hit_accepted``, ``hit_reason``, ``hit_warnings`` (of
+        ``channel_note``, ``residual_noise_ratio`` (residual RMS over the pre-trigger
+        noise). Over ``aside_pole`` (fitted poles that are residual terms, not modes; see
+        :mod:`modalnb.estimate._select`): ``aside_frequency_hz``, ``aside_damping_ratio``,
+        ``aside_frequency_hz_std``, ``aside_energy``, ``aside_reason``. Over hit: ``hit_accepted``, ``hit_reason``, ``hit_warnings`` (of
         the hit checks). The damping cross-checks of :func:`modalnb.estimate.cross_checks`
         (``xcheck_*``, each with its known bias in the attrs). Attributes: ``recipe`` (JSON
-        that replays the call), ``settings`` (JSON), ``band``, ``window``,
+        that replays the call), ``settings`` (JSON; ``fit_quality`` says whether the model
+        fits the data), ``band``, ``window``,
         ``input_checksum``, ``modalnb_version``.
 
     Notes

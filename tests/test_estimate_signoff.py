@@ -301,3 +301,29 @@ def test_exports_of_the_poles_set_aside(tmp_path):
     assert "Poles set aside" not in format_modal_table(one)
     with xr.open_dataset(files["modes.nc"], engine="h5netcdf") as nc:
         assert nc.sizes.get("aside_pole", 0) == 0
+
+
+def test_the_rules_on_the_reported_false_mode():
+    # the false mode of the field report (issue 9): 144.8 Hz, zeta 5.2 +- 1.5, frequency
+    # +- 41 Hz, beside four well-determined modes; 1 s window. Rules as documented in
+    # modalnb.estimate._select (1/T = 1 Hz, 1 % of f_n = 1.45 Hz).
+    from types import SimpleNamespace
+
+    from modalnb.estimate._select import _select_modes
+
+    core = SimpleNamespace(
+        fn=np.array([144.8, 210.0, 600.0, 601.0, 900.0, 1130.0]),
+        zeta=np.array([5.2, 0.02, 0.03, 0.001, 0.03, 0.013]),
+        fn_std=np.array([41.0, 1e-3, 4e-3, 0.01, 6e-3, 3e-3]),
+        significance=np.array([5e6, 1e8, 1.3e8, 5e3, 1e8, 1.3e8]),
+        prob=SimpleNamespace(data_t=np.zeros((8, 4))),
+    )
+    sel, aside = _select_modes(core, (5.0, 1843.0), [], None, 1.0, 4096.0, np.array([]))
+    assert sel == [1, 2, 4, 5]
+    why = dict(aside)
+    assert why[0].startswith("frequency not determined")
+    # 601 Hz: 1 Hz from a mode 2.6e4 times stronger, inside 2 half-power bandwidths (36 Hz)
+    assert why[3].startswith("leakage of the mode at 600")
+    # the same pole asked for by the user (add_modes) stays a mode
+    sel, _ = _select_modes(core, (5.0, 1843.0), [], None, 1.0, 4096.0, np.array([601.0]))
+    assert 3 in sel
