@@ -157,7 +157,12 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     args.source = ", ".join(args.records)
     recipe = _recipe_from_args(args, ds)
     out = Path(args.out)
-    result, _ = _fit_and_write(ds, recipe, out, steps, title=f"modalnb: {args.source}")
+    from ._errors import EstimationError
+
+    try:
+        result, _ = _fit_and_write(ds, recipe, out, steps, title=f"modalnb: {args.source}")
+    except EstimationError as exc:  # name the records file
+        raise EstimationError(f"{args.source}: {exc}") from None
     print(format_modal_table(result))
     print(f"wrote modes.csv, shapes.csv, hits.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
     print(CAUTION)

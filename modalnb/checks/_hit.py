@@ -279,9 +279,7 @@ def analyse_hit(arrays: RecordArrays, index: int, th: Mapping[str, Any]) -> Hit:
         notes.append("no force record")
     else:
         force = arrays.force[index]
-        pulse = force_pulse(force, t, th)
-        if pulse is None:
-            notes.append("dead force record (all samples equal)")
+        pulse = force_pulse(force, t, th)  # None when flat: the "no pulse" check says so
     resp = arrays.response[index]
     dead = dead_channels(resp)
     start = pulse.start if pulse is not None and pulse.clear else None

@@ -22,7 +22,7 @@ import xarray as xr
 
 from .._errors import EstimationError
 from .._noise import MIN_NOISE_SAMPLES, dead_channels, noise_end, noise_sigma
-from .._pulse import contact_end, pulse_bounds
+from .._pulse import contact_end, holds_pulse, pulse_bounds
 from .._utils import check_band, default_band, frequency_list
 from ..records import get_sample_rate, has_force, records_checksum, validate_records
 from ._basis import is_near_critical, pole_of, residues_from_coefficients
@@ -73,6 +73,7 @@ class _Prepared:
     noise_from: str
     fs: float
     tau: float | None
+    with_force: bool = True  # some accepted hit's force record holds a pulse
 
 
 def accept_decisions(records: xr.Dataset, accept: Any) -> np.ndarray:
@@ -168,16 +169,17 @@ def _prepare(records: xr.Dataset, window: Any, accept: Any) -> _Prepared:
     acc_idx = np.nonzero(acc)[0]
     resp = np.asarray(records["response"].values, float)
     pulse_start = None
-    if has_force(records):
-        force = np.asarray(records["force"].values, float)
-        bounds = [pulse_bounds(force[h], t) for h in acc_idx]
+    nonneg = np.nonzero(t >= 0)[0]
+    i_default = int(nonneg[0]) if nonneg.size else 0
+    # only hits whose force record holds a pulse bound the window (a flat force: none)
+    force = np.asarray(records["force"].values, float) if has_force(records) else None
+    pulsed = [h for h in acc_idx if force is not None and holds_pulse(force[h])]
+    if pulsed:
+        bounds = [pulse_bounds(force[h], t) for h in pulsed]
         # after the last contact of every accepted hit (a double hit that the user
-        # accepted contributes free decay only after its second tap)
-        i_default = max(contact_end(force[h], t) for h in acc_idx)
+        # accepted contributes free decay only after its second tap), never before t = 0
+        i_default = max(i_default, *(contact_end(force[h], t) for h in pulsed))
         pulse_start = min(b[0] for b in bounds)
-    else:
-        nonneg = np.nonzero(t >= 0)[0]
-        i_default = int(nonneg[0]) if nonneg.size else 0
     i0, i1 = _window_indices(t, fs, window, i_default)
     t_win = t[i0:i1]
     data = resp[acc_idx][:, :, i0:i1].copy()
@@ -198,6 +200,7 @@ def _prepare(records: xr.Dataset, window: Any, accept: Any) -> _Prepared:
     return _Prepared(
         hits=hits, accepted=acc, acc_idx=acc_idx, channels=channels, live=live, t_win=t_win,
         i0=i0, i1=i1, data=data, weight=weight, noise_from=noise_from, fs=fs, tau=tau,
+        with_force=bool(pulsed),
     )
 
 
@@ -594,7 +597,7 @@ class SharedPoleFit:
         coef, fit_r2 = _residue_fit(prep, core)
         sel = _select_modes(core, band, dropped, self.n_modes)
         scat_f, scat_z = self._per_hit_scatter(prep, core, weight)
-        use_force = has_force(records)
+        use_force = has_force(records) and prep.with_force
         sign = np.ones(n_ch)
         if "direction" in records.coords:
             sign = np.array([-1.0 if str(d).strip().startswith("-") else 1.0
