@@ -21,7 +21,7 @@ import numpy as np
 import xarray as xr
 
 from .._errors import EstimationError
-from .._noise import MIN_NOISE_SAMPLES, dead_channels, noise_end, noise_sigma
+from .._noise import MIN_NOISE_SAMPLES, dead_channels, noise_end, noise_sigma, rms, unit_scale
 from .._pulse import contact_end, holds_pulse, pulse_bounds
 from .._utils import check_band, default_band, frequency_list
 from ..records import get_sample_rate, has_force, records_checksum, validate_records
@@ -74,6 +74,7 @@ class _Prepared:
     fs: float
     tau: float | None
     with_force: bool = True  # some accepted hit's force record holds a pulse
+    scale: np.ndarray | None = None  # per channel: data = original * scale (powers of two)
 
 
 def accept_decisions(records: xr.Dataset, accept: Any) -> np.ndarray:
@@ -168,6 +169,10 @@ def _prepare(records: xr.Dataset, window: Any, accept: Any) -> _Prepared:
         )
     acc_idx = np.nonzero(acc)[0]
     resp = np.asarray(records["response"].values, float)
+    # each channel at unit peak (a power of two, exact) before any arithmetic that can
+    # overflow or underflow; the residues are divided by it again (original units)
+    scale = unit_scale(resp[acc_idx], axis=(0, 2)).reshape(-1)
+    resp = resp * scale[None, :, None]
     pulse_start = None
     nonneg = np.nonzero(t >= 0)[0]
     i_default = int(nonneg[0]) if nonneg.size else 0
@@ -200,7 +205,7 @@ def _prepare(records: xr.Dataset, window: Any, accept: Any) -> _Prepared:
     return _Prepared(
         hits=hits, accepted=acc, acc_idx=acc_idx, channels=channels, live=live, t_win=t_win,
         i0=i0, i1=i1, data=data, weight=weight, noise_from=noise_from, fs=fs, tau=tau,
-        with_force=bool(pulsed),
+        with_force=bool(pulsed), scale=scale,
     )
 
 
@@ -275,9 +280,9 @@ def _residue_fit(prep: _Prepared, core: CoreResult) -> tuple[np.ndarray, np.ndar
     resid = flat.reshape(n, n_hit_acc, n_ch) - fitted
     dm = flat.reshape(n, n_hit_acc, n_ch)
     dm = dm - dm.mean(axis=0, keepdims=True)
-    tss = np.sum(dm**2, axis=(0, 1))
-    rss_c = np.sum(resid**2, axis=(0, 1))
-    fit_r2 = np.where(tss > 0, 1.0 - rss_c / np.where(tss > 0, tss, 1.0), 0.0)
+    # R^2 = 1 - (RMS residual / RMS signal)^2: a ratio of scale-safe RMS values
+    r_sig, r_res = rms(dm, axis=(0, 1)), rms(resid, axis=(0, 1))
+    fit_r2 = np.where(r_sig > 0, 1.0 - (r_res / np.where(r_sig > 0, r_sig, 1.0)) ** 2, 0.0)
     return coef, fit_r2
 
 
@@ -336,10 +341,17 @@ def _force_normalise(records: xr.Dataset, prep: _Prepared, r: np.ndarray, lam: c
     if not use_force:
         return r.mean(axis=0), r
     ftil = _force_spectrum(records, prep, lam)
-    denom = np.sum(np.abs(ftil) ** 2)
+    g = float(unit_scale(np.abs(ftil)).item())  # at unit peak: any force units
+    denom = np.sum(np.abs(ftil * g) ** 2)
     if denom > 0:
-        ch = np.sum(np.conj(ftil)[:, None] * r, axis=0) / denom
-        return ch, r / np.where(ftil != 0, ftil, 1.0)[:, None]
+        with np.errstate(over="ignore"):  # a ratio beyond double precision: noted
+            ch = np.sum(np.conj(ftil * g)[:, None] * r, axis=0) / denom * g
+            per_hit = r / np.where(ftil != 0, ftil, 1.0)[:, None]
+        if not (np.all(np.isfinite(ch)) and np.all(np.isfinite(per_hit))):
+            raise EstimationError(
+                "the residues per unit force exceed double precision (about 1e308) in these "
+                "units. Hint: record the response or the force in other units.")
+        return ch, per_hit
     notes.append("force spectrum zero at the pole: residues not force-normalised")
     return r.mean(axis=0), r
 
@@ -638,6 +650,8 @@ class SharedPoleFit:
         reg = _regime(z, zstd)
         per_mode["regime"].append(reg)
         r, lam = _record_residues(core, coef, k, float(prep.t_win[0]), (n_hit_acc, n_ch))
+        if prep.scale is not None:
+            r = r / prep.scale[None, :]  # back to the original units
         ch, per_hit = _force_normalise(records, prep, r, lam, use_force, notes)
         per_mode["hit_res"][i][prep.acc_idx] = per_hit
         per_mode["ch_res"][i] = ch
