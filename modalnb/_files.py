@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import contextlib
 import errno
+import itertools
 import os
 import secrets
 import shutil
@@ -36,8 +37,10 @@ from pathlib import Path
 from ._errors import ModalnbError
 
 __all__ = [
+    "MAX_CARRIED",
     "OUTPUT_FILES",
     "atomic_write_text",
+    "check_output_folder",
     "atomic_write_bytes",
     "atomic_write_with",
     "recover_folder",
@@ -314,6 +317,24 @@ def _folder_lock(folder: Path) -> Iterator[bool]:
         os.close(fd)
 
 
+def _sync(folder: Path) -> None:
+    """Flush the files of a staged set and the folder itself to disk before it is published."""
+    for p in folder.rglob("*"):
+        if p.is_file() and not p.is_symlink():
+            fd = os.open(p, os.O_RDONLY)
+            try:
+                os.fsync(fd)
+            finally:
+                os.close(fd)
+    fd = os.open(folder, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    except OSError:  # pragma: no cover - a file system that cannot sync a folder
+        pass
+    finally:
+        os.close(fd)
+
+
 def _link_or_copy(src: str, dst: str) -> None:
     try:
         os.link(src, dst, follow_symlinks=False)
@@ -331,6 +352,53 @@ def _carry_over(old: Path, new: Path, replaces: Collection[str]) -> None:
             shutil.copytree(entry, target, symlinks=True, copy_function=_link_or_copy)
         else:
             _link_or_copy(str(entry), str(target))
+
+
+#: Most entries of the user's own (files and folders, counted recursively) an output
+#: folder may hold: they are carried over (hard links) each time it is replaced, so a
+#: folder of its own is wanted, not a project folder (ours).
+MAX_CARRIED = 10_000
+
+
+def check_output_folder(folder: str | os.PathLike[str], *,
+                        replaces: Collection[str] = OUTPUT_FILES) -> Path:
+    """The absolute output folder, or a one-line ModalnbError when it cannot be replaced.
+
+    Refused: a file in its place; the current working folder or one that holds it (it
+    would be exchanged under the running shell); a folder holding more than
+    :data:`MAX_CARRIED` entries of the user's own (a project folder, not an output folder).
+    Cheap: callers check before the work, :func:`replaced_folder` checks again.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> d = pathlib.Path(tempfile.mkdtemp()) / "out"
+    >>> check_output_folder(d) == d.resolve()
+    True
+    """
+    path = Path(os.path.realpath(folder))
+    if path.exists() and not path.is_dir():
+        raise ModalnbError(f"{path} is a file, not a folder. Hint: give a folder path for "
+                           "the output files.")
+    cwd = Path(os.path.realpath(os.getcwd()))
+    if path == cwd or path in cwd.parents:
+        raise ModalnbError(f"{folder}: the output folder would replace the current folder "
+                           f"{cwd} as a whole. Hint: give a folder of its own, e.g. "
+                           f"{Path(folder) / 'modal-table'}.")
+    if path.is_dir():
+        count = 0
+        for entry in path.iterdir():
+            if entry.name in replaces:
+                continue
+            count += 1
+            if entry.is_dir() and not entry.is_symlink():
+                count += sum(1 for _ in itertools.islice(entry.rglob("*"), MAX_CARRIED + 1))
+            if count > MAX_CARRIED:
+                raise ModalnbError(
+                    f"{folder} holds more than {MAX_CARRIED} files of other programs; the "
+                    "output folder is replaced as a whole, with them carried over. Hint: give "
+                    "a folder of its own for the output files.")
+    return path
 
 
 @contextmanager
@@ -366,10 +434,7 @@ def replaced_folder(
     >>> sorted(p.name for p in d.iterdir()), (d / "modes.csv").read_text()
     (['modes.csv', 'notes.txt'], 'new')
     """
-    folder = Path(os.path.realpath(folder))  # a link to a folder: replace the folder
-    if folder.exists() and not folder.is_dir():
-        raise ModalnbError(f"{folder} is a file, not a folder. Hint: give a folder path for "
-                           "the output files.")
+    folder = check_output_folder(folder, replaces=replaces)  # a link: replace its target
     folder.parent.mkdir(parents=True, exist_ok=True)
     with _folder_lock(folder) as locked:
         recover_folder(folder, locked=locked)
@@ -380,6 +445,7 @@ def replaced_folder(
             mode = stat.S_IMODE(folder.stat().st_mode) if folder.is_dir() else 0o777 & ~_umask()
             os.chmod(stage, mode)
             yield stage
+            _sync(stage)
             if folder.is_dir():
                 _carry_over(folder, stage, replaces)
                 if _exchange(stage, folder):

@@ -131,9 +131,11 @@ def _recipe_from_args(args: argparse.Namespace, records: Any):
 
 
 def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: str) -> Any:
+    from ._files import check_output_folder
     from .export import write_modal_table
     from .pipeline import run_recipe
 
+    check_output_folder(out)  # before the work: a folder that cannot be replaced is one line
     result, checks = run_recipe(records, recipe, progress=steps)
     from .export import write_report
 

@@ -207,3 +207,21 @@ def test_a_file_in_place_of_the_folder_is_one_line(tmp_path):
     with pytest.raises(ModalnbError, match="is a file, not a folder"), \
             replaced_folder(tmp_path / "out"):
         pass
+
+
+def test_the_current_folder_is_refused_before_the_work(tmp_path, monkeypatch):
+    """`--out .` would exchange the folder the shell stands in: one line, no fit."""
+    from modalnb import ModalnbError
+
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "keep.txt").write_text("x")
+    with pytest.raises(ModalnbError, match="current folder"), replaced_folder("."):
+        pass
+    with pytest.raises(ModalnbError, match="current folder"), replaced_folder(tmp_path.parent):
+        pass
+    assert (tmp_path / "keep.txt").read_text() == "x"
+    proc = subprocess.run([sys.executable, "-m", "modalnb.cli", "demo", "--out", ".", "--quiet"],
+                          capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 2 and len(proc.stderr.strip().splitlines()) == 1, proc.stderr
+    assert "fitting" not in proc.stderr
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["keep.txt"]
