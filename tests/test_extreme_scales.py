@@ -23,6 +23,8 @@ import sys
 
 import numpy as np
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from modalnb import check_hits, fit_modes
 from modalnb.io import save_records
@@ -120,3 +122,49 @@ def test_noise_rms_is_scale_safe():
     for c in (1e300, 1e-300, 1e-310):
         assert float(rms(c * x)) == pytest.approx(c * ref, rel=1e-12 if c > 1e-308 else 1e-3)
         assert float(noise_sigma(c * x)) == pytest.approx(c * np.std(x), rel=1e-12 if c > 1e-308 else 1e-3)
+
+
+def _scaled(exponents, force_exponent):
+    ds = _records()
+    ds = ds.copy(deep=True)
+    ds["response"].values *= (10.0 ** np.asarray(exponents, float))[None, :, None]
+    ds["force"].values *= 10.0 ** force_exponent
+    return ds
+
+
+# ---------------------------------------------------------------- property tests (hypothesis)
+_exps = st.lists(st.integers(-300, 300), min_size=3, max_size=3)
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(_exps, st.integers(-300, 300))
+def test_check_hits_at_any_units_warns_nothing_and_agrees(exponents, force_exponent):
+    """Any units per channel: the same decisions and SNR as at normal scale (linearity),
+    and no numpy warning."""
+    import warnings
+
+    ref = check_hits(_records())
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        out = check_hits(_scaled(exponents, force_exponent))
+    assert list(out["accepted"].values) == list(ref["accepted"].values)
+    np.testing.assert_allclose(out["channel_snr_db"].values, ref["channel_snr_db"].values,
+                               rtol=1e-9)
+
+@settings(max_examples=4, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.lists(st.integers(-150, 150), min_size=3, max_size=3), st.integers(-150, 150))
+def test_fit_at_any_units_is_a_table_or_one_error(exponents, force_exponent):
+    """Any units within double precision of each other: the same poles, or our one-line
+    error; never a numpy warning or another exception."""
+    import warnings
+
+    from modalnb import ModalnbError
+
+    fn, _ = _truth()
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        try:
+            res = fit_modes(_scaled(exponents, force_exponent))
+        except ModalnbError as exc:
+            assert "\n" not in str(exc)
+            return
+    np.testing.assert_allclose(res["frequency_hz"].values, fn, rtol=1e-3)

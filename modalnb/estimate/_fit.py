@@ -598,7 +598,12 @@ class SharedPoleFit:
             fn, z, _, _ = natural_with_cov(prob, x, np.zeros((x.size, x.size)))
             fns.append(fn)
             zs.append(z)
-        return np.nanstd(np.array(fns), axis=0, ddof=1), np.nanstd(np.array(zs), axis=0, ddof=1)
+        import warnings
+
+        with warnings.catch_warnings(action="ignore", category=RuntimeWarning):
+            # a mode no per-hit refit resolves (all NaN) has an undefined scatter: NaN, quietly
+            return (np.nanstd(np.array(fns), axis=0, ddof=1),
+                    np.nanstd(np.array(zs), axis=0, ddof=1))
 
     def _assemble(
         self, records: xr.Dataset, prep: _Prepared, core: CoreResult, weight: np.ndarray,
