@@ -141,8 +141,8 @@ def _check_some_accepted(checks: xr.Dataset) -> None:
     said = "; ".join(f"{r} ({n} of {acc.size})" if len(reasons) > 1 else r
                      for r, n in reasons.items())
     raise EstimationError(
-        f"every hit ({acc.size}) is rejected by the hit checks: {said}. Nothing to fit. "
-        "Hint: fix the cause and record new hits, or accept hits by hand (the recipe's hit_overrides)."
+        f"all {acc.size} hits are rejected: {said}; nothing to fit. Hint: fix the cause and "
+        "record new hits, or accept hits by hand (the recipe's hit_overrides)."
     )
 
 

@@ -53,7 +53,7 @@ def test_cli_fit_is_one_line_naming_the_file(tmp_path):
     assert proc.returncode == 2
     lines = proc.stderr.strip().splitlines()
     assert len(lines) == 1, proc.stderr
-    assert "unplugged.nc" in lines[0] and "no pulse" in lines[0]
+    assert "unplugged.nc" in lines[0] and "no pulse" in lines[0] and "rejected" in lines[0]
     assert "Traceback" not in proc.stderr
     assert not (tmp_path / "out").exists()
 
