@@ -231,10 +231,13 @@ def _exchange(a: Path, b: Path) -> bool:
 def _siblings(folder: Path) -> list[tuple[str, Path]]:
     """Staging (``"new"``) and set-aside (``"old"``) siblings of `folder` left by runs."""
     out = []
-    for kind in ("new", "old"):
-        for p in folder.parent.glob(f".{folder.name}.{kind}-*"):
-            out.append((kind, p))
-    return out
+    if not folder.parent.is_dir():
+        return out
+    for p in folder.parent.iterdir():  # not glob: the name may hold [, * or ?
+        for kind in ("new", "old"):
+            if p.name.startswith(f".{folder.name}.{kind}-"):
+                out.append((kind, p))
+    return sorted(out)
 
 
 def _pid_alive(name: str) -> bool:
