@@ -15,6 +15,8 @@ __all__ = [
     "dead_channels",
     "noise_end",
     "noise_sigma",
+    "rms",
+    "unit_scale",
 ]
 
 #: Fewest noise-only samples for a noise floor. The standard deviation of a Gaussian
@@ -51,10 +53,59 @@ def noise_end(time: np.ndarray, pulse_start: int | None = None) -> int:
     return end
 
 
+def unit_scale(x: np.ndarray, axis: int | tuple[int, ...] | None = None) -> np.ndarray:
+    """Powers of two that bring the largest magnitude of `x` (over `axis`) into [0.5, 1)
+    (subnormal peaks to at least 2**-52, peaks near the largest double to below 4).
+
+    Multiplying a channel by its factor before any arithmetic that can overflow or
+    underflow (squares, sums of squares, matrix decompositions) keeps a channel recorded
+    in any units (1e300 or 1e-300 of them) in the range of double precision; a power of
+    two changes no significant bit, so dividing by it again gives back the original
+    units exactly. All-zero or non-finite slices get 1. The result keeps the reduced axes
+    (size 1), so ``x * unit_scale(x, axis)`` broadcasts.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> float(unit_scale(np.array([3.0, -1.0]))[0])
+    0.25
+    >>> g = unit_scale(np.array([[1e-300], [0.0]]), axis=1)[:, 0]
+    >>> bool(0.5 <= g[0] * 1e-300 < 1.0), float(g[1])
+    (True, 1.0)
+    """
+    a = np.abs(np.asarray(x, float))
+    with np.errstate(invalid="ignore"):
+        peak = np.max(a, axis=axis, keepdims=True) if a.size else np.ones([1] * a.ndim)
+    ok = np.isfinite(peak) & (peak > 0)
+    _, exponent = np.frexp(np.where(ok, peak, 1.0))
+    # 2**+-1022 keep the factor itself a normal number (subnormal or near-overflow peaks)
+    return np.where(ok, np.ldexp(1.0, np.clip(-exponent, -1022, 1022)), 1.0)
+
+
+def rms(x: np.ndarray, axis: int | tuple[int, ...] | None = None) -> np.ndarray:
+    """Root mean square over `axis`, without overflow or underflow at any scale.
+
+    Each slice is brought to unit peak (:func:`unit_scale`) before it is squared, so
+    ``rms(1e300 * x) == 1e300 * rms(x)`` to rounding where ``np.sqrt(np.mean(x**2))``
+    overflows (and 1e-300 underflows to zero).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> float(rms(np.array([3e300, -3e300, 3e300, -3e300])))
+    3e+300
+    """
+    a = np.asarray(x, float)
+    g = unit_scale(a, axis)
+    r = np.sqrt(np.mean((a * g) ** 2, axis=axis, keepdims=True)) / g
+    return np.squeeze(r, axis=axis) if axis is not None else float(r.squeeze())
+
+
 def noise_sigma(x: np.ndarray, axis: int | tuple[int, ...] = -1) -> np.ndarray:
     """Noise standard deviation of noise-only samples (mean removed along the last axis).
 
     Several hits (leading axes in `axis`) pool their samples, each about its own mean.
+    Computed at unit scale (:func:`unit_scale`, :func:`rms`): any units work.
 
     Examples
     --------
@@ -64,8 +115,10 @@ def noise_sigma(x: np.ndarray, axis: int | tuple[int, ...] = -1) -> np.ndarray:
     0.5
     """
     a = np.asarray(x, float)
+    g = unit_scale(a, axis)  # scale-safe: no overflow in the mean or the squares
+    a = a * g
     a = a - a.mean(axis=-1, keepdims=True)
-    return np.sqrt(np.mean(a**2, axis=axis))
+    return rms(a, axis=axis) / np.squeeze(g, axis=axis)
 
 
 def dead_channels(x: np.ndarray) -> np.ndarray:

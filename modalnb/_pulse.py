@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["MAD_TO_SIGMA", "contact_end", "pulse_bounds"]
+__all__ = ["MAD_TO_SIGMA", "contact_end", "holds_pulse", "pulse_bounds"]
 
 #: Scale that turns a median absolute deviation into a standard deviation for Gaussian
 #: noise: 1 / Phi^-1(3/4) = 1.4826, Phi the standard normal distribution function, so that
@@ -13,6 +13,24 @@ __all__ = ["MAD_TO_SIGMA", "contact_end", "pulse_bounds"]
 #: 1273-1283). The median ignores the few samples of a hammer pulse that a standard
 #: deviation would be dominated by.
 MAD_TO_SIGMA = 1.4826
+
+
+def holds_pulse(force: np.ndarray) -> bool:
+    """Whether a force record of one hit can hold a hammer pulse at all.
+
+    A record whose samples are all equal (an unplugged or stuck force sensor: all zeros,
+    or a constant offset) holds none; then there is no pulse to bound, no force spectrum
+    to normalise by, and no pulse start to end a noise window. Non-finite samples hold
+    none either (validated records have none).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> holds_pulse(np.zeros(64)), holds_pulse(np.r_[np.zeros(10), 1.0, np.zeros(53)])
+    (False, True)
+    """
+    f = np.asarray(force, dtype=float)
+    return bool(f.size > 0 and np.all(np.isfinite(f)) and np.ptp(f) > 0)
 
 
 def pulse_bounds(force: np.ndarray, time: np.ndarray, *, end_fraction: float = 0.02) -> tuple[int, int, int]:

@@ -131,16 +131,21 @@ def _recipe_from_args(args: argparse.Namespace, records: Any):
 
 
 def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: str) -> Any:
+    from ._files import check_output_folder
     from .export import write_modal_table
     from .pipeline import run_recipe
 
+    check_output_folder(out)  # before the work: a folder that cannot be replaced is one line
     result, checks = run_recipe(records, recipe, progress=steps)
-    steps("writing the modal table")
-    write_modal_table(result, out, recipe=recipe, checks=checks)
-    steps("writing the HTML report")
     from .export import write_report
 
-    write_report(records, result, checks, out / "report.html", title=title)
+    def report(path: Path) -> None:
+        steps("writing the HTML report")
+        write_report(records, result, checks, path, title=title)
+
+    steps("writing the modal table")
+    # one set: the report is written beside the table and the folder replaced as a whole
+    write_modal_table(result, out, recipe=recipe, checks=checks, extra_files={"report.html": report})
     steps.done()
     return result, checks
 
@@ -154,7 +159,12 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     args.source = ", ".join(args.records)
     recipe = _recipe_from_args(args, ds)
     out = Path(args.out)
-    result, _ = _fit_and_write(ds, recipe, out, steps, title=f"modalnb: {args.source}")
+    from ._errors import EstimationError
+
+    try:
+        result, _ = _fit_and_write(ds, recipe, out, steps, title=f"modalnb: {args.source}")
+    except EstimationError as exc:  # name the records file
+        raise EstimationError(f"{args.source}: {exc}") from None
     print(format_modal_table(result))
     print(f"wrote modes.csv, shapes.csv, hits.csv, poles_set_aside.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
     print(CAUTION)
@@ -281,6 +291,24 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+def _term_as_interrupt() -> Any:
+    """Turn SIGTERM into KeyboardInterrupt (as Ctrl-C), so a terminated run cleans up its
+    staging folder; only where SIGTERM still has its default action (main thread).
+    Returns a function that puts the default back."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread() \
+            or signal.getsignal(signal.SIGTERM) is not signal.SIG_DFL:
+        return lambda: None
+
+    def interrupt(signum: int, frame: Any) -> None:
+        raise KeyboardInterrupt
+
+    signal.signal(signal.SIGTERM, interrupt)
+    return lambda: signal.signal(signal.SIGTERM, signal.SIG_DFL)
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``modalnb`` command.
 
@@ -293,6 +321,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
     parser = build_parser()
     args = parser.parse_args(argv)
+    restore = _term_as_interrupt()
     try:
         return int(args.func(args) or 0)
     except (ModalnbError, FileNotFoundError, IsADirectoryError, PermissionError) as exc:
@@ -306,6 +335,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("modalnb: interrupted", file=sys.stderr)
         return 130
+    finally:
+        restore()
 
 
 if __name__ == "__main__":  # pragma: no cover

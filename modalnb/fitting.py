@@ -130,6 +130,22 @@ def finish_table(
     return table
 
 
+def _check_some_accepted(checks: xr.Dataset) -> None:
+    """A one-line EstimationError saying why, when the hit checks rejected every hit."""
+    acc = np.asarray(checks["accepted"].values, bool)
+    if acc.any():
+        return
+    reasons: dict[str, int] = {}
+    for r in checks["reason"].values.tolist():
+        reasons[str(r) or "rejected"] = reasons.get(str(r) or "rejected", 0) + 1
+    said = "; ".join(f"{r} ({n} of {acc.size})" if len(reasons) > 1 else r
+                     for r, n in reasons.items())
+    raise EstimationError(
+        f"all {acc.size} hits are rejected: {said}; nothing to fit. Hint: fix the cause and "
+        "record new hits, or accept hits by hand (the recipe's hit_overrides)."
+    )
+
+
 class ModeFit:
     """Shared-pole modal estimator for a record set (scikit-learn style), for repeated refits.
 
@@ -290,6 +306,7 @@ class ModeFit:
                      overrides: dict[int, bool]) -> ModeFit:
         """The engine and the finisher, given the hit checks of `records` (run_recipe's
         steps, so it can report them one by one)."""
+        _check_some_accepted(checks)
         self._records = records
         self._overrides = overrides
         self._fit_records = engine_records(records, self.correct_exponential_window)

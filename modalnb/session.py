@@ -346,18 +346,22 @@ class Analysis:
             raise ModalnbError("nothing to export yet: the fit has not succeeded. Hint: see `error`.")
         if self.preview and not self._apply(self.recipe, full=True):
             raise ModalnbError(f"the full fit before export failed: {self.error}")
+        from ._files import replaced_folder
         from .export import write_modal_table, write_report
 
         out = Path(out_dir)
         files: dict[str, Path] = {}
-        if table:
-            files.update(write_modal_table(self.result, out, recipe=self.recipe, checks=self.checks))
-        if report:
-            out.mkdir(parents=True, exist_ok=True)
-            files["report.html"] = write_report(
-                self.records, self.result, self.checks, out / "report.html",
-                title=title or f"modalnb: {self.source or 'record set'}",
-            )
+        extra = {"report.html": lambda path: write_report(
+            self.records, self.result, self.checks, path,
+            title=title or f"modalnb: {self.source or 'record set'}",
+        )} if report else {}
+        if table:  # one set: the folder is replaced as a whole, the report with the table
+            files.update(write_modal_table(self.result, out, recipe=self.recipe, checks=self.checks,
+                                           extra_files=extra))
+        elif extra:  # the report alone replaces only the report
+            with replaced_folder(out, replaces=("report.html",)) as stage:
+                extra["report.html"](stage / "report.html")
+            files["report.html"] = out / "report.html"
         return files
 
     # --- derived data for the views (plain numpy) ----------------------------------

@@ -202,14 +202,20 @@ def test_weak_hit_against_force_full_scale():
     assert not bool(check_hits(ds, reject=("weak hit",))["accepted"].item())
 
 
-def test_dead_force_record_is_a_warning():
+def test_dead_force_record_is_no_pulse_and_rejected():
+    # issue 10: a flat force record (unplugged sensor) holds no hammer pulse: rejected by
+    # default with the reason; a warning only when "no pulse" is not in `reject`
     ds, _ = make_hits()
     ds = ds.copy(deep=True)
     ds["force"].values[:] = 0.0
     out = check_hits(ds)
-    assert bool(out["accepted"].item())
-    assert "dead force record" in str(out["warnings"].item())
+    assert not bool(out["accepted"].item())
+    assert str(out["reason"].item()).startswith("no pulse (force record flat")
+    assert bool(out["force_flat"].item())
     assert np.isnan(float(out["double_hit_ratio"].item()))
+    warned = check_hits(ds, reject=("double hit", "clipping"))
+    assert bool(warned["accepted"].item())
+    assert "no pulse" in str(warned["warnings"].item())
 
 
 # ------------------------------------------------------------------ clipping

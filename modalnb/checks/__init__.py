@@ -1,6 +1,6 @@
 """Hit checks: is each hammer hit of a record set fit for modal estimation?
 
-:func:`check_hits` measures every hit of a record set (double hit, soft tip, weak hit,
+:func:`check_hits` measures every hit of a record set (no pulse, double hit, soft tip, weak hit,
 clipping, low signal-to-noise, decay by the record end, dead channels) and decides, from
 thresholds that are plain keyword parameters, whether the hit is accepted. Which checks
 reject a hit and which only warn is data (the ``reject`` parameter), and the user can
@@ -10,7 +10,7 @@ the soft-tip check judges, for plotting.
 
 Where things are:
 
-* one module per check -- :mod:`~modalnb.checks.double_hit`,
+* one module per check -- :mod:`~modalnb.checks.no_pulse`, :mod:`~modalnb.checks.double_hit`,
   :mod:`~modalnb.checks.soft_tip`, :mod:`~modalnb.checks.weak_hit`,
   :mod:`~modalnb.checks.clipping`, :mod:`~modalnb.checks.low_snr`,
   :mod:`~modalnb.checks.not_decayed`, :mod:`~modalnb.checks.dead_channel` -- each with

@@ -19,7 +19,17 @@ import xarray as xr
 from .._errors import ModalnbError, RecordError
 from .._utils import check_band, did_you_mean
 from ..records import get_sample_rate, validate_records
-from . import _hit, clipping, dead_channel, double_hit, low_snr, not_decayed, soft_tip, weak_hit
+from . import (
+    _hit,
+    clipping,
+    dead_channel,
+    double_hit,
+    low_snr,
+    no_pulse,
+    not_decayed,
+    soft_tip,
+    weak_hit,
+)
 from ._base import Check, Threshold, Variable
 
 __all__ = ["CHECKS", "CHECK_NAMES", "DEFAULT_REJECT", "THRESHOLDS", "check_hits"]
@@ -27,6 +37,7 @@ __all__ = ["CHECKS", "CHECK_NAMES", "DEFAULT_REJECT", "THRESHOLDS", "check_hits"
 #: The checks, in the order they run and their phrases appear in ``reason``/``warnings``.
 #: A new check is a module with a ``CHECK`` and one entry here.
 CHECKS: tuple[Check, ...] = (
+    no_pulse.CHECK,
     double_hit.CHECK,
     soft_tip.CHECK,
     weak_hit.CHECK,
@@ -39,10 +50,12 @@ CHECKS: tuple[Check, ...] = (
 #: Names of the checks, as used in ``reject`` and at the start of reason/warning phrases.
 CHECK_NAMES: tuple[str, ...] = tuple(c.name for c in CHECKS)
 
-#: Checks that reject a hit by default; all others only warn. A double hit adds a second
-#: input the free-decay model does not have, and a clipped record is not the structure's
-#: response (common practice: reject double hits and overloads).
-DEFAULT_REJECT = ("double hit", "clipping")
+#: Checks that reject a hit by default; all others only warn. A flat force record holds no
+#: hammer pulse (the force sensor is unplugged: nothing to normalise by, no pulse to start
+#: the decay after), a double hit adds a second input the free-decay model does not have,
+#: and a clipped record is not the structure's response (common practice: check the force
+#: first, reject double hits and overloads).
+DEFAULT_REJECT = ("no pulse", "double hit", "clipping")
 
 #: Every keyword threshold of :func:`check_hits`: the shared hit analysis's, then each
 #: check's.
@@ -144,7 +157,7 @@ def check_hits(
         checks and is recorded in ``user_decision``, ``reason`` and ``warnings``.
     reject : iterable of str
         Checks whose findings reject the hit; the others only warn. Names are those of
-        :data:`CHECK_NAMES`. Default ``("double hit", "clipping")`` (common practice).
+        :data:`CHECK_NAMES`. Default ``("no pulse", "double hit", "clipping")`` (common practice).
     source : str, optional
         File name for error messages.
     **thresholds : float or int

@@ -39,7 +39,7 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
-from .._noise import MIN_NOISE_SAMPLES, dead_channels, noise_end, noise_sigma
+from .._noise import MIN_NOISE_SAMPLES, dead_channels, noise_end, noise_sigma, rms, unit_scale
 from .._pulse import MAD_TO_SIGMA, pulse_bounds
 from ._base import NAN, Threshold, Variable, db
 
@@ -90,7 +90,7 @@ def second_difference_sigma(x: np.ndarray) -> float:
     if x.size < 3:
         return NAN
     d = x[:-2] - 2.0 * x[1:-1] + x[2:]
-    return float(np.sqrt(np.mean(d * d) / 6.0))
+    return float(rms(d) / np.sqrt(6.0))  # scale-safe root mean square
 
 
 def _crossing_time(t: np.ndarray, y: np.ndarray, i0: int, i1: int, level: float) -> float:
@@ -236,8 +236,8 @@ class RecordArrays:
     sample_rate: float
     band: tuple[float, float] | None
     channels: tuple[str, ...]
-    response: np.ndarray  #: (hit, channel, time)
-    full_scale: np.ndarray | None
+    response: np.ndarray  #: (hit, channel, time), each channel at unit peak (power of two)
+    full_scale: np.ndarray | None  #: per channel, in the scaled units of `response`
     force: np.ndarray | None  #: (hit, time)
     force_full_scale: float | None
     force_units: str
@@ -256,13 +256,21 @@ def record_arrays(records: xr.Dataset, sample_rate: float,
     f_fs = float(np.asarray(records.attrs["force_full_scale"]).item()) \
         if "force_full_scale" in records.attrs else None
     with_force = "force" in records.data_vars
+    # every check works on channels brought to unit peak by a power of two (exact): no
+    # overflow or underflow in any units; the checks report ratios only, and a full scale
+    # is scaled with its channel
+    response = np.asarray(records["response"].values, dtype=float)
+    gain = unit_scale(response, axis=(0, 2))
+    response = response * gain
+    if full is not None:
+        full = full * gain.reshape(n_ch)
     return RecordArrays(
         labels=[int(h) for h in records["hit"].values],
         time=np.asarray(records["time"].values, dtype=float),
         sample_rate=sample_rate,
         band=band,
         channels=channels,
-        response=np.asarray(records["response"].values, dtype=float),
+        response=response,
         full_scale=full,
         force=np.asarray(records["force"].values, dtype=float) if with_force else None,
         force_full_scale=f_fs,
@@ -279,9 +287,7 @@ def analyse_hit(arrays: RecordArrays, index: int, th: Mapping[str, Any]) -> Hit:
         notes.append("no force record")
     else:
         force = arrays.force[index]
-        pulse = force_pulse(force, t, th)
-        if pulse is None:
-            notes.append("dead force record (all samples equal)")
+        pulse = force_pulse(force, t, th)  # None when flat: the "no pulse" check says so
     resp = arrays.response[index]
     dead = dead_channels(resp)
     start = pulse.start if pulse is not None and pulse.clear else None

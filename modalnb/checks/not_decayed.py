@@ -22,6 +22,7 @@ from typing import Any
 
 import numpy as np
 
+from .._noise import rms as noise_rms
 from ._base import NAN, Check, Outcome, Threshold, Variable, db, names
 from ._hit import Hit
 
@@ -36,7 +37,7 @@ def not_decayed(hit: Hit, th: Mapping[str, Any]) -> Outcome:
     end = np.full(len(hit.channels), NAN)
     flagged: list[str] = []
     for c in np.flatnonzero(~hit.dead):
-        rms = float(np.sqrt(np.mean((hit.response[c, -n_end:] - fl.baseline[c]) ** 2)))
+        rms = float(noise_rms(hit.response[c, -n_end:] - fl.baseline[c]))
         end[c] = db(rms / fl.peak[c]) if fl.peak[c] > 0 else NAN
         noise = fl.noise[c]
         if end[c] > th["max_end_level_db"] and (

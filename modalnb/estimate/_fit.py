@@ -21,8 +21,8 @@ import numpy as np
 import xarray as xr
 
 from .._errors import EstimationError
-from .._noise import MIN_NOISE_SAMPLES, dead_channels, noise_end, noise_sigma
-from .._pulse import contact_end, pulse_bounds
+from .._noise import MIN_NOISE_SAMPLES, dead_channels, noise_end, noise_sigma, rms, unit_scale
+from .._pulse import contact_end, holds_pulse, pulse_bounds
 from .._utils import check_band, default_band, frequency_list
 from ..records import get_sample_rate, has_force, records_checksum, validate_records
 from ._basis import is_near_critical, pole_of, residues_from_coefficients
@@ -68,6 +68,8 @@ class _Prepared:
     noise_from: str
     fs: float
     tau: float | None
+    with_force: bool = True  # some accepted hit's force record holds a pulse
+    scale: np.ndarray | None = None  # per channel: data = original * scale (powers of two)
 
 
 def accept_decisions(records: xr.Dataset, accept: Any) -> np.ndarray:
@@ -162,17 +164,22 @@ def _prepare(records: xr.Dataset, window: Any, accept: Any) -> _Prepared:
         )
     acc_idx = np.nonzero(acc)[0]
     resp = np.asarray(records["response"].values, float)
+    # each channel at unit peak (a power of two, exact) before any arithmetic that can
+    # overflow or underflow; the residues are divided by it again (original units)
+    scale = unit_scale(resp[acc_idx], axis=(0, 2)).reshape(-1)
+    resp = resp * scale[None, :, None]
     pulse_start = None
-    if has_force(records):
-        force = np.asarray(records["force"].values, float)
-        bounds = [pulse_bounds(force[h], t) for h in acc_idx]
+    nonneg = np.nonzero(t >= 0)[0]
+    i_default = int(nonneg[0]) if nonneg.size else 0
+    # only hits whose force record holds a pulse bound the window (a flat force: none)
+    force = np.asarray(records["force"].values, float) if has_force(records) else None
+    pulsed = [h for h in acc_idx if force is not None and holds_pulse(force[h])]
+    if pulsed:
+        bounds = [pulse_bounds(force[h], t) for h in pulsed]
         # after the last contact of every accepted hit (a double hit that the user
-        # accepted contributes free decay only after its second tap)
-        i_default = max(contact_end(force[h], t) for h in acc_idx)
+        # accepted contributes free decay only after its second tap), never before t = 0
+        i_default = max(i_default, *(contact_end(force[h], t) for h in pulsed))
         pulse_start = min(b[0] for b in bounds)
-    else:
-        nonneg = np.nonzero(t >= 0)[0]
-        i_default = int(nonneg[0]) if nonneg.size else 0
     i0, i1 = _window_indices(t, fs, window, i_default)
     t_win = t[i0:i1]
     data = resp[acc_idx][:, :, i0:i1].copy()
@@ -193,6 +200,7 @@ def _prepare(records: xr.Dataset, window: Any, accept: Any) -> _Prepared:
     return _Prepared(
         hits=hits, accepted=acc, acc_idx=acc_idx, channels=channels, live=live, t_win=t_win,
         i0=i0, i1=i1, data=data, weight=weight, noise_from=noise_from, fs=fs, tau=tau,
+        with_force=bool(pulsed), scale=scale,
     )
 
 
@@ -274,10 +282,10 @@ def _residue_fit(prep: _Prepared, core: CoreResult) -> tuple[np.ndarray, np.ndar
     resid = flat.reshape(n, n_hit_acc, n_ch) - fitted
     dm = flat.reshape(n, n_hit_acc, n_ch)
     dm = dm - dm.mean(axis=0, keepdims=True)
-    tss = np.sum(dm**2, axis=(0, 1))
-    rss_c = np.sum(resid**2, axis=(0, 1))
-    fit_r2 = np.where(tss > 0, 1.0 - rss_c / np.where(tss > 0, tss, 1.0), 0.0)
-    return coef, fit_r2, np.sqrt(rss_c / max(n * n_hit_acc, 1))
+    # R^2 = 1 - (RMS residual / RMS signal)^2: a ratio of scale-safe RMS values
+    r_sig, r_res = rms(dm, axis=(0, 1)), rms(resid, axis=(0, 1))
+    fit_r2 = np.where(r_sig > 0, 1.0 - (r_res / np.where(r_sig > 0, r_sig, 1.0)) ** 2, 0.0)
+    return coef, fit_r2, r_res
 
 
 def _fit_quality(prep: _Prepared, core: CoreResult, resid_rms: np.ndarray
@@ -341,10 +349,17 @@ def _force_normalise(records: xr.Dataset, prep: _Prepared, r: np.ndarray, lam: c
     if not use_force:
         return r.mean(axis=0), r
     ftil = _force_spectrum(records, prep, lam)
-    denom = np.sum(np.abs(ftil) ** 2)
+    g = float(unit_scale(np.abs(ftil)).item())  # at unit peak: any force units
+    denom = np.sum(np.abs(ftil * g) ** 2)
     if denom > 0:
-        ch = np.sum(np.conj(ftil)[:, None] * r, axis=0) / denom
-        return ch, r / np.where(ftil != 0, ftil, 1.0)[:, None]
+        with np.errstate(over="ignore"):  # a ratio beyond double precision: noted
+            ch = np.sum(np.conj(ftil * g)[:, None] * r, axis=0) / denom * g
+            per_hit = r / np.where(ftil != 0, ftil, 1.0)[:, None]
+        if not (np.all(np.isfinite(ch)) and np.all(np.isfinite(per_hit))):
+            raise EstimationError(
+                "the residues per unit force exceed double precision (about 1e308) in these "
+                "units. Hint: record the response or the force in other units.")
+        return ch, per_hit
     notes.append("force spectrum zero at the pole: residues not force-normalised")
     return r.mean(axis=0), r
 
@@ -591,7 +606,12 @@ class SharedPoleFit:
             fn, z, _, _ = natural_with_cov(prob, x, np.zeros((x.size, x.size)))
             fns.append(fn)
             zs.append(z)
-        return np.nanstd(np.array(fns), axis=0, ddof=1), np.nanstd(np.array(zs), axis=0, ddof=1)
+        import warnings
+
+        with warnings.catch_warnings(action="ignore", category=RuntimeWarning):
+            # a mode no per-hit refit resolves (all NaN) has an undefined scatter: NaN, quietly
+            return (np.nanstd(np.array(fns), axis=0, ddof=1),
+                    np.nanstd(np.array(zs), axis=0, ddof=1))
 
     def _assemble(
         self, records: xr.Dataset, prep: _Prepared, core: CoreResult, weight: np.ndarray,
@@ -604,7 +624,7 @@ class SharedPoleFit:
         sel, aside = _select_modes(core, band, dropped, self.n_modes, t_len, prep.fs, asked)
         noise_ratio, quality = _fit_quality(prep, core, resid_rms)
         scat_f, scat_z = self._per_hit_scatter(prep, core, weight)
-        use_force = has_force(records)
+        use_force = has_force(records) and prep.with_force
         sign = np.ones(n_ch)
         if "direction" in records.coords:
             sign = np.array([-1.0 if str(d).strip().startswith("-") else 1.0
@@ -653,6 +673,8 @@ class SharedPoleFit:
         reg = _regime(z, zstd)
         per_mode["regime"].append(reg)
         r, lam = _record_residues(core, coef, k, float(prep.t_win[0]), (n_hit_acc, n_ch))
+        if prep.scale is not None:
+            r = r / prep.scale[None, :]  # back to the original units
         ch, per_hit = _force_normalise(records, prep, r, lam, use_force, notes)
         per_mode["hit_res"][i][prep.acc_idx] = per_hit
         per_mode["ch_res"][i] = ch

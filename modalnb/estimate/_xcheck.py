@@ -8,6 +8,7 @@ import numpy as np
 import xarray as xr
 
 from .._errors import EstimationError
+from .._noise import unit_scale
 
 BIAS = {
     "log_decrement": "peaks of the band-passed mode; biased by neighbouring modes, noise and "
@@ -30,7 +31,11 @@ def _signal(records: xr.Dataset, result: xr.Dataset, channel_index: int) -> tupl
         tw = t[sel]
         x = np.where(tw >= 0, x * np.exp(np.clip(tw, 0, None) / float(tau)), x)
     fs = 1.0 / float(np.median(np.diff(t)))
-    return x - x.mean(), fs
+    # unit peak (every method here is scale-free): any units, no overflow in the squares
+    x = x * unit_scale(x)
+    x = x - x.mean()
+    peak = float(np.max(np.abs(x))) if x.size else 0.0
+    return (x / peak if peak > 0 else x), fs
 
 
 def _bandpass(x: np.ndarray, fs: float, lo: float, hi: float) -> np.ndarray:

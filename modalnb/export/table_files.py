@@ -12,8 +12,10 @@ Files written by :func:`write_modal_table` (the contract other tools rely on):
   there are none);
 * ``modes.nc`` (the result Dataset), ``modes.json`` (everything above), ``recipe.json``.
 
-All files of one call are first written to temporary files in the output folder and then
-renamed into place, so an existing folder is updated, never left half-written.
+The folder is replaced as a whole (:func:`modalnb._files.replaced_folder`): the new set is
+written into a sibling folder and exchanged with the old one in one step, so a reader sees
+the complete old or the complete new set (files of the caller, ``extra_files``, such as
+the HTML report, belong to the same set); the user's own files in the folder are kept.
 """
 
 from __future__ import annotations
@@ -22,13 +24,14 @@ import csv
 import io
 import json
 import os
+from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import xarray as xr
 
-from .._files import staged_files
+from .._files import replaced_folder
 from ..recipe import Recipe
 from ._aside import ASIDE_COLUMNS, aside_rows
 from ._rows import (
@@ -85,6 +88,7 @@ def write_modal_table(
     *,
     recipe: Recipe | None = None,
     checks: xr.Dataset | None = None,
+    extra_files: Mapping[str, Callable[[Path], object]] | None = None,
 ) -> dict[str, Path]:
     """Write the modal table files into `out_dir` (created if needed), all or nothing.
 
@@ -100,6 +104,9 @@ def write_modal_table(
         (``result.attrs["recipe"]``, set by :func:`modalnb.fit_modes`), if any.
     checks : xarray.Dataset, optional
         Output of :func:`modalnb.check_hits`, for the ``warnings`` column.
+    extra_files : mapping of file name to writer, optional
+        More files of the same set: ``writer(path)`` writes the file at `path` in the
+        staging folder (e.g. ``{"report.html": lambda p: write_report(ds, result, None, p)}``).
 
     Returns
     -------
@@ -107,7 +114,6 @@ def write_modal_table(
         File kind -> path written.
     """
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
     m_rows, s_rows, h_rows = modes_rows(result), shapes_rows(result), hits_rows(result, checks)
     texts = {
         "modes.csv": _csv_text(m_rows, _columns(m_rows, MODE_COLUMNS)),
@@ -133,8 +139,11 @@ def write_modal_table(
         recipe = Recipe.from_json(result.attrs["recipe"])
     if recipe is not None:
         texts["recipe.json"] = recipe.to_json()
-    with staged_files(out) as stage:
+    extra = dict(extra_files or {})
+    with replaced_folder(out) as stage:
         for name, text in texts.items():
-            stage(name).write_bytes(text.encode("utf-8"))
-        _netcdf_ready(result).to_netcdf(stage("modes.nc"), engine="h5netcdf")
-    return {name: out / name for name in [*texts, "modes.nc"]}
+            (stage / name).write_bytes(text.encode("utf-8"))
+        _netcdf_ready(result).to_netcdf(stage / "modes.nc", engine="h5netcdf")
+        for name, write in extra.items():
+            write(stage / name)
+    return {name: out / name for name in [*texts, "modes.nc", *extra]}
