@@ -25,6 +25,7 @@ from .._noise import MIN_NOISE_SAMPLES, dead_channels, noise_end, noise_sigma
 from .._pulse import contact_end, pulse_bounds
 from .._utils import check_band, default_band, frequency_list
 from ..records import get_sample_rate, has_force, records_checksum, validate_records
+from ._bands import fit_banded, use_bands
 from ._basis import is_near_critical, pole_of, residues_from_coefficients
 from ._convert import modal_conversions
 from ._core import ASKED_TOL, CoreResult, compress, fit_core
@@ -540,6 +541,8 @@ class SharedPoleFit:
         """Shared poles of the weighted signals; without a pre-trigger noise floor, a first
         fit, then each channel reweighted by its residual RMS and refined."""
         fs = prep.fs
+        if use_bands(prep.t_win.size, fs, self.band):  # a long record: zoom bands (_bands.py)
+            return fit_banded(prep, self._choices(fs)[0], asked, x0, self.max_order)
         t_rel = prep.t_win - prep.t_win[0]
         y = _stack(prep, prep.weight)
         f_search = default_band(fs)[1]
