@@ -44,9 +44,10 @@ import numpy as np
 
 from .._errors import EstimationError
 from ._basis import basis_matrix, natural
-from ._core import MAX_COMPONENTS, W_SCALE_FRACTION, CoreResult, compress, fit_core
+from ._core import MAX_COMPONENTS, W_SCALE_FRACTION, CoreResult, _rss_increase, compress, fit_core
 from ._pencil import TWO_PI, PencilOutput, find_poles, initial_modes
-from ._varpro import Problem, natural_with_cov
+from ._significance import significance_threshold
+from ._varpro import Problem, levenberg_marquardt, natural_with_cov
 
 #: Records longer than this many samples are fitted band by band (below it the full-rate
 #: fit is fast and exact; 2**15 samples is 0.7 s at 44.1 kHz; common practice).
@@ -69,10 +70,10 @@ MARGIN_FRACTION = 0.25
 #: below the band's Nyquist frequency: the band rate is about 5 widths.
 GUARD_FRACTION = 0.5
 
-#: The pencil of a band sees at most this many seconds (resolution 1/T = 0.25 Hz, a
-#: fraction of the split of a 0.1 % doublet at 1 kHz; the variable projection then uses
-#: the whole record).
-PENCIL_MAX_S = 4.0
+#: The pencil of a band sees at most this many seconds (resolution 1/T = 0.4 Hz, under
+#: half the split of a 0.1 % doublet at 1 kHz; the pencil resolves below 1/T at a good
+#: signal-to-noise ratio, and the variable projection then uses the whole ring-down).
+PENCIL_MAX_S = 2.5
 
 #: Samples left out at each end of a band signal, in units of 1/margin: the raised-cosine
 #: edge spreads the record's abrupt start (and end) over a few 1/margin (its time response
@@ -88,6 +89,9 @@ HEAD_SAMPLES = 4096
 #: Band poles of two neighbouring bands within this many decay rates (or 1e-6 of the
 #: frequency) are one pole seen twice at the shared edge.
 EDGE_DUPLICATE_SIGMAS = 2.0
+
+#: Levenberg-Marquardt steps before the pencil's weak poles are pruned in a band.
+QUICK_LM_ITER = 8
 
 #: Samples per chunk when the full-length basis is applied (bounds the memory).
 CHUNK = 2**16
@@ -121,6 +125,7 @@ class _Band:
     frac: float  # the taper's share of the band Nyquist range (white-noise equivalent)
     margin: float  # Hz each side
     skip_s: float  # left out at each end (the taper's time spread)
+    lines: bool  # a periodogram line of the band's core stands above the noise
 
     @property
     def heavy_sigma(self) -> float:
@@ -138,6 +143,18 @@ def _bands_of(spec: np.ndarray, nfft: int, n: int, fs: float, f_lo: float, f_hi:
     guard = GUARD_FRACTION * width
     freqs = np.arange(spec.shape[1]) * df
     t_len = n / fs
+    # periodogram summed over the signals, each over its noise level (the median of its
+    # periodogram over the searched range, ln 2 times the mean for white noise); a band
+    # none of whose lines exceeds ln(K) + 3 (K lines searched: the largest of K unit
+    # exponentials exceeds it with probability about e^-3; common practice) holds no pole
+    # the pencil would accept, and is skipped
+    rng_idx = np.nonzero((freqs >= f_lo) & (freqs <= f_hi))[0]
+    pw = np.abs(spec[:, rng_idx]) ** 2
+    level = np.median(pw, axis=1) / np.log(2.0)
+    power = np.zeros(spec.shape[1])
+    power[rng_idx] = np.sum(pw / np.where(level > 0, level, 1.0)[:, None], axis=0) / spec.shape[0]
+    line_limit = np.log(max(rng_idx.size, 2)) + 3.0
+    del pw
     out = []
     from scipy.fft import irfft, next_fast_len
 
@@ -167,7 +184,9 @@ def _bands_of(spec: np.ndarray, nfft: int, n: int, fs: float, f_lo: float, f_hi:
         sig = np.ascontiguousarray(sig[:, skip : n_keep - skip])
         t = (skip + np.arange(sig.shape[1])) / fs_b
         frac = float(np.sum(taper**2) * df / (0.5 * fs_b))
-        out.append(_Band(lo, hi, k_shift * df, fs_b, t, sig, frac, margin, skip / fs_b))
+        core = (f_sel >= lo) & (f_sel < hi)
+        lines = bool(core.any() and np.max(power[idx[core]]) > line_limit)
+        out.append(_Band(lo, hi, k_shift * df, fs_b, t, sig, frac, margin, skip / fs_b, lines))
     return out
 
 
@@ -186,6 +205,23 @@ def _pencil_length(sig: np.ndarray, fs_b: float) -> int:
     if above.size == 0:
         return min(cap, 8 * blk)
     return int(min(cap, max((above[-1] + 2) * blk, 8 * blk, 256)))
+
+
+def _decay_length(sig: np.ndarray) -> int:
+    """Samples of the band signal until its envelope (RMS in 32 blocks) has fallen to the
+    noise floor (twice the floor's RMS), plus two blocks: later samples hold noise only
+    and add nothing to the poles but cost."""
+    n = sig.shape[1]
+    nb = 32
+    blk = n // nb
+    if blk < 64:
+        return n
+    e = np.sum(sig[:, : blk * nb].reshape(sig.shape[0], nb, blk) ** 2, axis=(0, 2))
+    floor = float(np.median(np.sort(e)[: max(nb // 4, 1)]))
+    above = np.nonzero(e > 4.0 * floor)[0]
+    if above.size == 0:
+        return n
+    return int(min(n, max((above[-1] + 3) * blk, 8 * blk)))
 
 
 def _to_band(sigma: float, u: float, shift_hz: float) -> tuple[float, float]:
@@ -300,6 +336,8 @@ def fit_poles_banded(
                 fd = np.sqrt(u_k) / TWO_PI if u_k > 0 else -1.0
                 if b.lo - b.margin <= fd < b.hi + b.margin:
                     in_core.append(_to_band(s_k, u_k, b.shift_hz))
+        elif not b.lines:
+            continue  # nothing in the band's periodogram stands above the noise
         else:
             n_p = _pencil_length(b.sig, b.fs_b)
             out = find_poles(b.sig[:, :n_p], b.fs_b, 0.5 * b.fs_b * 0.98, max_order=max_order)
@@ -310,8 +348,8 @@ def fit_poles_banded(
                 pencil.rows.append((ib + 1, row[1], lam.imag / TWO_PI, fn, zz, row[5], row[6]))
             # every pole of the band and its margins starts the fit (a pole in a margin
             # that is left out would bias its neighbours); only the core's are kept
-            cands = [c for c in out.candidates
-                     if b.lo - b.margin <= c.lam.imag / TWO_PI + b.shift_hz < b.hi + b.margin]
+            cands = [c for c in out.candidates if -c.lam.real < heavy
+                     and b.lo - b.margin <= c.lam.imag / TWO_PI + b.shift_hz < b.hi + b.margin]
             in_core = initial_modes(cands, b.fs_b)
             for c in cands:
                 if b.lo <= c.lam.imag / TWO_PI + b.shift_hz < b.hi:
@@ -322,10 +360,15 @@ def fit_poles_banded(
             continue
         bp = Problem(np.zeros((1, 1)), b.t, prob_scale, 1)
         xb = bp.pack(np.array([m[0] for m in in_core]), np.array([m[1] for m in in_core]))
+        if x0 is None and len(in_core) > 1:
+            # pruned on the samples the pencil saw (they resolved its poles)
+            xb = _quick_prune(Problem(np.ascontiguousarray(b.sig[:, :n_p].T), b.t[:n_p],
+                                      prob_scale, 1), xb)
+        n_d = _decay_length(b.sig)
         try:
             with np.errstate(over="ignore", under="ignore", invalid="ignore"):
-                cb = fit_core(b.sig, b.t, b.fs_b, f_max=0.5 * b.fs_b, x0=xb, polish=False,
-                              protect_hz=_band_hz(protect_hz, b))
+                cb = fit_core(b.sig[:, :n_d], b.t[:n_d], b.fs_b, f_max=0.5 * b.fs_b, x0=xb,
+                              polish=False, protect_hz=_band_hz(protect_hz, b))
         except EstimationError:
             continue  # nothing above the noise in this band
         for k in range(cb.sigma.size):
@@ -407,6 +450,32 @@ def fit_poles_banded(
                       zeta_std=zeta_std, sigma=sigma, u=u, significance=signif, s2=s2,
                       rss=rss, n_tot=n_tot, minimizer=None,
                       pencil=pencil if x0 is None else None)
+
+
+def _quick_prune(prob: Problem, x: np.ndarray) -> np.ndarray:
+    """The pencil's start, after a few Levenberg-Marquardt steps, without the modes whose
+    likelihood-ratio statistic stays below the noise significance limit.
+
+    The pencil of a band with strong lines offers many weak poles that only absorb its own
+    truncation; :func:`._core.fit_core` would drop them too, one full refinement per round
+    (the cost grows with the square of the modes); here they go after one short round.
+    """
+    with np.errstate(over="ignore", under="ignore", invalid="ignore"):
+        x, _ = levenberg_marquardt(prob, x, max_iter=QUICK_LM_ITER)
+        sigma, u = prob.unpack(x)
+        ok = (sigma > 0) & (u > 0) & np.isfinite(sigma) & np.isfinite(u)
+        if not ok.all():
+            x = x[np.repeat(ok, 2)]
+        if x.size <= 2:
+            return x
+        n, p = prob.data_t.shape
+        rss = float(np.sum(prob.residual(x) ** 2))
+        s2 = rss / max(n * p - p * (x.size + prob.n_extra) - x.size, 1)
+        lr = _rss_increase(prob, x) / max(s2, 1e-300)
+    keep = lr >= significance_threshold(p)
+    if not keep.any():
+        keep = lr == lr.max()
+    return x[np.repeat(keep, 2)]
 
 
 def _band_hz(protect_hz: np.ndarray | None, b: _Band) -> np.ndarray | None:
