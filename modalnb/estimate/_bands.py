@@ -44,7 +44,15 @@ import numpy as np
 
 from .._errors import EstimationError
 from ._basis import basis_matrix, natural
-from ._core import MAX_COMPONENTS, W_SCALE_FRACTION, CoreResult, _rss_increase, compress, fit_core
+from ._core import (
+    ASKED_TOL,
+    MAX_COMPONENTS,
+    W_SCALE_FRACTION,
+    CoreResult,
+    _rss_increase,
+    compress,
+    fit_core,
+)
 from ._pencil import TWO_PI, PencilOutput, find_poles, initial_modes
 from ._significance import significance_threshold
 from ._varpro import Problem, levenberg_marquardt, natural_with_cov
@@ -363,13 +371,10 @@ def fit_poles_banded(
         if x0 is None and len(in_core) > 1:
             # pruned on the samples the pencil saw (they resolved its poles)
             xb = _quick_prune(Problem(np.ascontiguousarray(b.sig[:, :n_p].T), b.t[:n_p],
-                                      prob_scale, 1), xb)
+                                      prob_scale, 1), xb, b.frac)
         n_d = _decay_length(b.sig)
-        try:
-            with np.errstate(over="ignore", under="ignore", invalid="ignore"):
-                cb = fit_core(b.sig[:, :n_d], b.t[:n_d], b.fs_b, f_max=0.5 * b.fs_b, x0=xb,
-                              polish=False, protect_hz=_band_hz(protect_hz, b))
-        except EstimationError:
+        cb = _band_fit(b, n_d, xb, _band_hz(protect_hz, b))
+        if cb is None:
             continue  # nothing above the noise in this band
         for k in range(cb.sigma.size):
             s_k, ub = float(cb.sigma[k]), float(cb.u[k])
@@ -452,7 +457,36 @@ def fit_poles_banded(
                       pencil=pencil if x0 is None else None)
 
 
-def _quick_prune(prob: Problem, x: np.ndarray) -> np.ndarray:
+def _band_fit(b: _Band, n_d: int, xb: np.ndarray,
+              protect: np.ndarray | None) -> CoreResult | None:
+    """:func:`._core.fit_core` on a band (its first `n_d` samples), then without the modes
+    whose likelihood-ratio statistic is below the noise significance limit once the
+    band's noise variance is taken at its white-noise equivalent (``s^2 / frac``: the
+    fit's own test sees the band's noise only where the taper passes it, so it would keep
+    noise poles about 1/frac times too easily). None when nothing is left."""
+    for _ in range(2):
+        try:
+            with np.errstate(over="ignore", under="ignore", invalid="ignore"):
+                cb = fit_core(b.sig[:, :n_d], b.t[:n_d], b.fs_b, f_max=0.5 * b.fs_b, x0=xb,
+                              polish=False, protect_hz=protect)
+        except EstimationError:
+            return None
+        with np.errstate(over="ignore", under="ignore", invalid="ignore"):
+            lr = _rss_increase(cb.prob, cb.x) * b.frac / max(cb.s2, 1e-300)
+        keep = lr >= significance_threshold(cb.prob.data_t.shape[1])
+        if protect is not None:
+            fd = np.sqrt(np.abs(cb.u)) / TWO_PI
+            keep |= np.array([np.any(np.abs(f - protect) < ASKED_TOL * (protect + b.shift_hz))
+                              for f in fd])
+        if keep.all():
+            return cb
+        if not keep.any():
+            return None
+        xb = cb.x[np.repeat(keep, 2)]
+    return cb
+
+
+def _quick_prune(prob: Problem, x: np.ndarray, frac: float) -> np.ndarray:
     """The pencil's start, after a few Levenberg-Marquardt steps, without the modes whose
     likelihood-ratio statistic stays below the noise significance limit.
 
@@ -470,7 +504,7 @@ def _quick_prune(prob: Problem, x: np.ndarray) -> np.ndarray:
             return x
         n, p = prob.data_t.shape
         rss = float(np.sum(prob.residual(x) ** 2))
-        s2 = rss / max(n * p - p * (x.size + prob.n_extra) - x.size, 1)
+        s2 = rss / max(n * p - p * (x.size + prob.n_extra) - x.size, 1) / frac
         lr = _rss_increase(prob, x) / max(s2, 1e-300)
     keep = lr >= significance_threshold(p)
     if not keep.any():
@@ -541,3 +575,38 @@ def fit_banded(prep: object, band: tuple[float, float], asked: np.ndarray,
     core = fit_poles_banded(y, t_rel, fs, (lo, hi), x0=x0, max_order=max_order,
                             protect_hz=asked if asked.size else None)
     return core, weight
+
+
+def scatter_banded(prep: object, core: CoreResult, weight: np.ndarray,
+                   band: tuple[float, float]) -> tuple[np.ndarray, np.ndarray]:
+    """Per-hit scatter of a long record (``SharedPoleFit._per_hit_scatter``'s band path).
+
+    Each accepted hit's signals are refitted band by band from the shared poles
+    (:func:`fit_poles_banded` with ``x0``); a mode of the shared fit takes the hit's pole
+    nearest in frequency (within a quarter of the mode's half-power bandwidth or 1e-4 of
+    its frequency, else NaN for that hit). Returns the standard deviations (ddof = 1) over
+    the hits of the natural frequency and the damping ratio.
+    """
+    live = prep.live
+    t_rel = prep.t_win - prep.t_win[0]
+    m = core.sigma.size
+    fns = np.full((prep.acc_idx.size, m), np.nan)
+    zs = np.full((prep.acc_idx.size, m), np.nan)
+    for i in range(prep.acc_idx.size):
+        y = prep.data[i][live] * weight[live][:, None]
+        try:
+            hit = fit_poles_banded(y, t_rel, float(prep.fs), band, x0=core.x)
+        except EstimationError:
+            continue
+        for k in range(m):
+            d = np.abs(hit.fn - core.fn[k])
+            j = int(np.argmin(d)) if d.size else -1
+            tol = max(0.25 * core.sigma[k] / np.pi, 1e-4 * core.fn[k])
+            if j >= 0 and d[j] <= tol:
+                fns[i, k], zs[i, k] = hit.fn[j], hit.zeta[j]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        import warnings
+
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)  # a mode no hit resolved: NaN
+            return np.nanstd(fns, axis=0, ddof=1), np.nanstd(zs, axis=0, ddof=1)

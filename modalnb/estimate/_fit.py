@@ -25,7 +25,7 @@ from .._noise import MIN_NOISE_SAMPLES, dead_channels, noise_end, noise_sigma
 from .._pulse import contact_end, pulse_bounds
 from .._utils import check_band, default_band, frequency_list
 from ..records import get_sample_rate, has_force, records_checksum, validate_records
-from ._bands import fit_banded, use_bands
+from ._bands import fit_banded, scatter_banded, use_bands
 from ._basis import is_near_critical, pole_of, residues_from_coefficients
 from ._convert import modal_conversions
 from ._core import ASKED_TOL, CoreResult, compress, fit_core
@@ -576,6 +576,8 @@ class SharedPoleFit:
         m = core.sigma.size
         if not self.scatter or n_hit < 3:
             return np.full(m, np.nan), np.full(m, np.nan)
+        if use_bands(prep.t_win.size, prep.fs, self.band):  # a long record: per-hit band refits
+            return scatter_banded(prep, core, weight, self._choices(prep.fs)[0])
         t_rel = prep.t_win - prep.t_win[0]
         fns, zs = [], []
         for i in range(n_hit):
