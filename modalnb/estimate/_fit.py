@@ -25,6 +25,7 @@ from .._noise import MIN_NOISE_SAMPLES, dead_channels, noise_end, noise_sigma, r
 from .._pulse import contact_end, holds_pulse, pulse_bounds
 from .._utils import check_band, default_band, frequency_list
 from ..records import get_sample_rate, has_force, records_checksum, validate_records
+from ._bands import fit_banded, scatter_banded, use_bands
 from ._basis import is_near_critical, pole_of, residues_from_coefficients
 from ._convert import modal_conversions
 from ._core import ASKED_TOL, CoreResult, compress, fit_core
@@ -563,6 +564,8 @@ class SharedPoleFit:
         """Shared poles of the weighted signals; without a pre-trigger noise floor, a first
         fit, then each channel reweighted by its residual RMS and refined."""
         fs = prep.fs
+        if use_bands(prep.t_win.size, fs, self.band):  # a long record: zoom bands (_bands.py)
+            return fit_banded(prep, self._choices(fs)[0], asked, x0, self.max_order)
         t_rel = prep.t_win - prep.t_win[0]
         y = _stack(prep, prep.weight)
         f_search = default_band(fs)[1]
@@ -596,6 +599,8 @@ class SharedPoleFit:
         m = core.sigma.size
         if not self.scatter or n_hit < 3:
             return np.full(m, np.nan), np.full(m, np.nan)
+        if use_bands(prep.t_win.size, prep.fs, self.band):  # a long record: per-hit band refits
+            return scatter_banded(prep, core, weight, self._choices(prep.fs)[0])
         t_rel = prep.t_win - prep.t_win[0]
         fns, zs = [], []
         for i in range(n_hit):

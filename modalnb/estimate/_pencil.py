@@ -302,11 +302,21 @@ def find_poles(
     return out
 
 
+#: The source label of the wide-band pass's candidates.
+WIDE_PASS = "pass0"
+
+#: Two sub-band candidates closer than this relative distance are one pole found at the
+#: shared edge of two sub-bands (far below any resolvable split: 1e-6 of 1 kHz is
+#: 1 mHz, the resolution 1/T of a 1000 s record).
+SAME_POLE_REL = 1e-6
+
+
 def initial_modes(cands: list[Candidate], fs: float) -> list[tuple[float, float]]:
     """Turn candidate poles into (sigma, u) mode starts, pairing real poles.
 
-    Oscillating poles give ``(sigma, wd**2)``; near-duplicates (same pole from two passes)
-    are merged, keeping the more significant. Real poles are paired, strongest first, into
+    Oscillating poles give ``(sigma, wd**2)``; near-duplicates (same pole from the wide
+    pass and a sub-band, within 0.3 % or half the decay rate; or from two sub-bands,
+    within half the decay rate) are merged, keeping the more significant. Real poles are paired, strongest first, into
     non-oscillating modes ``sigma = -(s1 + s2)/2``, ``u = -((s1 - s2)/2)**2``; a real pole
     left without a partner starts as an overdamped pair with a partner 4 times faster.
     """
@@ -315,7 +325,15 @@ def initial_modes(cands: list[Candidate], fs: float) -> list[tuple[float, float]
     for c in cands:
         dup = False
         for k in kept:
-            tol = max(0.5 * max(-c.lam.real, -k.lam.real), 0.003 * abs(c.lam), TWO_PI * 1e-3 * fs / 1e3)
+            half_bw = 0.5 * max(-c.lam.real, -k.lam.real)
+            if WIDE_PASS in (c.source, k.source) and c.source != k.source:
+                # the wide pass (600 samples) sees a sub-band's pole only roughly
+                tol = max(half_bw, 0.003 * abs(c.lam), TWO_PI * 1e-3 * fs / 1e3)
+            else:
+                # sub-band poles are found once each (a pole belongs to one sub-band); two
+                # of them are the same pole only within half their decay rate (a doublet
+                # 0.1 % apart at Q ~ 1e4 is 20 decay rates apart)
+                tol = max(half_bw, SAME_POLE_REL * abs(c.lam))
             if abs(c.lam - k.lam) < tol:
                 dup = True
                 break

@@ -847,6 +847,7 @@ def run_bench(
     *,
     suite_trials: int | None = None,
     suite: bool = True,
+    long_records: bool | None = None,
 ) -> dict[str, Any]:
     """Run the whole benchmark and return its results as JSON-safe nested dicts.
 
@@ -866,6 +867,9 @@ def run_bench(
         Noise realisations per generated campaign (:func:`run_suite`; default 2, quick 1).
     suite : bool
         Run the suite of generated campaigns (False: the accuracy cases only).
+    long_records : bool, optional
+        Run :func:`modalnb.testing.bench_long.run_long_bench` (key ``long_records``;
+        default: as `suite`).
 
     Returns
     -------
@@ -891,7 +895,7 @@ def run_bench(
     from .scenarios import QUICK_SUITE, SUITE
 
     n_sc = (len(QUICK_SUITE) if quick else len(SUITE)) if suite else 0
-    total = len(plan) * n + n_sc
+    total = len(plan) * n + n_sc + int(bool(suite if long_records is None else long_records))
     done = [0]
 
     def tick(label: str = "accuracy") -> None:
@@ -910,6 +914,13 @@ def run_bench(
         run_suite(quick, suite_trials, progress=lambda name: tick(f"suite {name}"))
         if suite else None
     )
+    if suite if long_records is None else long_records:
+        from .bench_long import run_long_bench
+
+        long_res = run_long_bench(quick)
+        tick("long records")
+    else:
+        long_res = None
     import scipy
 
     from .. import __version__
@@ -937,6 +948,8 @@ def run_bench(
             "run_time_s": time.perf_counter() - t_start,
         },
     }
+    if long_res is not None:
+        results["long_records"] = long_res
     return _jsonable(results)
 
 
@@ -1048,6 +1061,10 @@ def format_bench(results: dict[str, Any]) -> str:
         )
     if results.get("suite"):
         lines += ["", *format_suite(results["suite"], results["targets"])]
+    if results.get("long_records"):
+        from .bench_long import format_long_bench
+
+        lines += ["", *format_long_bench(results["long_records"])]
     meta = results["meta"]
     lines += [
         "",
