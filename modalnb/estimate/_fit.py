@@ -12,6 +12,7 @@ above it instead:
 from __future__ import annotations
 
 import json
+import warnings
 from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -29,7 +30,7 @@ from ._basis import is_near_critical, pole_of, residues_from_coefficients
 from ._convert import modal_conversions
 from ._core import ASKED_TOL, CoreResult, compress, fit_core
 from ._significance import significance_threshold
-from ._varpro import Problem, levenberg_marquardt, natural_with_cov
+from ._varpro import Problem, natural_with_cov, one_step
 
 #: Fewest window samples: a pencil needs a Hankel matrix of several rows and columns per
 #: mode, and a covariance needs residual degrees of freedom (common practice).
@@ -568,7 +569,16 @@ class SharedPoleFit:
     def _per_hit_scatter(
         self, prep: _Prepared, core: CoreResult, weight: np.ndarray
     ) -> tuple[np.ndarray, np.ndarray]:
-        """Standard deviation over accepted hits of per-hit pole refits (NaN below 3 hits)."""
+        """Standard deviation over accepted hits of per-hit pole estimates (NaN below 3 hits).
+
+        Each hit's poles are one Gauss-Newton step from the shared poles on that hit's
+        signals alone (Kaufman's normal equations of :mod:`._varpro`): the linearised pole
+        update ``dx = -(J^T J)^-1 J^T r``. From a consistent start one Newton-type step is
+        first-order equivalent to the full per-hit minimiser (the one-step estimator, Le Cam
+        1956, "On the asymptotic theory of estimation and testing hypotheses", Proc. Third
+        Berkeley Symp. 1; Bickel 1975, "One-step Huber estimates in the linear model",
+        JASA 70), so the scatter costs one normal-matrix build per hit instead of a fit.
+        """
         n_hit = prep.acc_idx.size
         m = core.sigma.size
         if not self.scatter or n_hit < 3:
@@ -579,11 +589,14 @@ class SharedPoleFit:
             d = prep.data[i][prep.live] * weight[prep.live][:, None]
             d = compress(d, min(d.shape[0], core.x.size + 4))
             prob = Problem(np.ascontiguousarray(d.T), t_rel, core.prob.w_scale, core.prob.n_extra)
-            x, _ = levenberg_marquardt(prob, core.x, max_iter=8)
+            x = one_step(prob, core.x)
             fn, z, _, _ = natural_with_cov(prob, x, np.zeros((x.size, x.size)))
             fns.append(fn)
             zs.append(z)
-        return np.nanstd(np.array(fns), axis=0, ddof=1), np.nanstd(np.array(zs), axis=0, ddof=1)
+        with np.errstate(invalid="ignore"), warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)  # a mode with < 2 finite hits
+            return (np.nanstd(np.array(fns), axis=0, ddof=1),
+                    np.nanstd(np.array(zs), axis=0, ddof=1))
 
     def _assemble(
         self, records: xr.Dataset, prep: _Prepared, core: CoreResult, weight: np.ndarray,

@@ -176,6 +176,37 @@ def levenberg_marquardt(
     return x, it
 
 
+def one_step(prob: Problem, x: np.ndarray) -> np.ndarray:
+    """One Gauss-Newton step ``x - (J^T J)^-1 J^T r`` from `x` (Kaufman's normal equations).
+
+    The linearised pole update of :meth:`Problem.kaufman_normal`; NaN parameters where
+    the normal matrix is singular or the step leaves the finite numbers (a mode that
+    this data does not determine).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> t = np.arange(512) / 512.0
+    >>> y = np.exp(-2.0 * t) * np.cos(2 * np.pi * 20.0 * t)
+    >>> prob = Problem(np.ascontiguousarray(y[:, None]), t, 2 * np.pi * 100.0)
+    >>> x = one_step(prob, prob.pack([2.01], [(2 * np.pi * 20.001) ** 2]))
+    >>> sigma, u = prob.unpack(x)
+    >>> round(float(sigma[0]), 4), round(float(np.sqrt(u[0]) / (2 * np.pi)), 5)
+    (2.0, 20.0)
+    """
+    x = np.asarray(x, float)
+    jtj, g = prob.kaufman_normal(x)
+    # Marquardt's diagonal scaling: solve the equilibrated system (conditioning only)
+    d = np.sqrt(np.abs(np.diag(jtj)))
+    d[d <= 0] = 1.0
+    try:
+        dx = -np.linalg.solve(jtj / np.outer(d, d), g / d) / d
+    except np.linalg.LinAlgError:
+        return np.full_like(x, np.nan)
+    out = x + dx
+    return out if np.all(np.isfinite(out)) else np.full_like(x, np.nan)
+
+
 LSQ_TOL = 1e-10
 """ftol, xtol and gtol of the final refinement (common practice: tight, the start has converged)."""
 
