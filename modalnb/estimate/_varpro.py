@@ -17,7 +17,7 @@ from typing import Any
 import numpy as np
 
 from .._errors import EstimationError
-from ._basis import basis_matrix, mode_columns_du, natural
+from ._basis import basis_du_matrix, basis_matrix, natural
 
 
 @dataclass
@@ -69,15 +69,14 @@ class Problem:
                 coef = np.linalg.solve(rr, qtd)
             else:
                 coef = np.linalg.lstsq(phi, self.data_t, rcond=None)[0]
-            dmat = np.empty((t.size, 4 * sigma.size))
-            for k in range(sigma.size):
-                c0, c1 = phi[:, 2 * k], phi[:, 2 * k + 1]
-                # d/dsigma of exp(-sigma t) f(t) is -t exp(-sigma t) f(t)
-                dmat[:, 4 * k] = -(t * c0) * self.w_scale
-                dmat[:, 4 * k + 1] = -(t * c1) * self.w_scale
-                d0, d1 = mode_columns_du(t, sigma[k], u[k], c0, c1)
-                dmat[:, 4 * k + 2] = d0 * self.w_scale**2
-                dmat[:, 4 * k + 3] = d1 * self.w_scale**2
+            m = sigma.size
+            dmat = np.empty((t.size, 4 * m))
+            # d/dsigma of exp(-sigma t) f(t) is -t exp(-sigma t) f(t)
+            dsig = -(t[:, None] * phi[:, : 2 * m]) * self.w_scale
+            ddu = basis_du_matrix(t, sigma, u, phi) * self.w_scale**2
+            dmat4 = dmat.reshape(t.size, m, 4)
+            dmat4[:, :, 0:2] = dsig.reshape(t.size, m, 2)
+            dmat4[:, :, 2:4] = ddu.reshape(t.size, m, 2)
         return q, qtd, coef, np.nan_to_num(dmat, nan=0.0, posinf=0.0, neginf=0.0)
 
     def kaufman_jacobian(self, x: np.ndarray) -> np.ndarray:
