@@ -43,13 +43,31 @@ class Problem:
         sigma, u = self.unpack(x)
         return basis_matrix(self.t, sigma, u, self.n_extra)
 
-    def residual(self, x: np.ndarray) -> np.ndarray:
-        with np.errstate(over="ignore", invalid="ignore"):
+    def _factor(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """``(Phi, Q, R)`` of the basis at `x` (thin QR), kept for the last point asked.
+
+        A Levenberg-Marquardt step evaluates the residual at a trial point and, once it is
+        accepted, the normal equations at the same point: the one-entry cache saves the
+        second basis and QR.
+        """
+        key = np.asarray(x, float).tobytes()
+        cache = getattr(self, "_cache", None)
+        if cache is not None and cache[0] == key:
+            return cache[1]
+        with np.errstate(over="ignore", invalid="ignore", under="ignore"):
             phi = self.basis(x)
-        if not np.all(np.isfinite(phi)):
+        if np.all(np.isfinite(phi)):
+            q, rr = np.linalg.qr(phi)
+        else:
+            q = rr = None
+        self._cache = (key, (phi, q, rr))
+        return phi, q, rr
+
+    def residual(self, x: np.ndarray) -> np.ndarray:
+        phi, q, _ = self._factor(x)
+        if q is None:
             # a trial step to a growing exponential: worse than any real fit
             return np.full(self.data_t.size, 1e100)
-        q, _ = np.linalg.qr(phi)
         r = self.data_t - q @ (q.T @ self.data_t)
         return r.ravel()
 
@@ -61,9 +79,11 @@ class Problem:
         """
         sigma, u = self.unpack(np.asarray(x, float))
         t = self.t
+        phi, q, rr = self._factor(x)
         with np.errstate(over="ignore", invalid="ignore", under="ignore"):
-            phi = basis_matrix(t, sigma, u, self.n_extra)
-            q, rr = np.linalg.qr(phi)
+            if q is None:
+                phi = np.nan_to_num(phi, nan=0.0, posinf=0.0, neginf=0.0)
+                q, rr = np.linalg.qr(phi)
             qtd = q.T @ self.data_t
             if np.all(np.abs(np.diag(rr)) > 0):
                 coef = np.linalg.solve(rr, qtd)
@@ -131,13 +151,48 @@ class Problem:
         return coef
 
 
+#: Relative-offset convergence limit of the Levenberg-Marquardt loop (Bates & Watts 1981,
+#: "A relative offset convergence criterion for nonlinear least squares", Technometrics
+#: 23(2)): the distance left to the least-squares point, measured against the statistical
+#: uncertainty of the parameters; they recommend 0.001, at which the remaining change is
+#: a negligible fraction of a standard deviation.
+RELATIVE_OFFSET_TOL = 1e-3
+
+
+def relative_offset(prob: Problem, jtj: np.ndarray, g: np.ndarray, cost: float) -> float:
+    """Bates & Watts' relative offset ``sqrt(|P_J r|^2 / p) / sqrt(|r - P_J r|^2 / (n - p))``.
+
+    ``|P_J r|^2 = g^T (J^T J)^-1 g`` with ``g = J^T r`` (the part of the residual the
+    parameters can still remove), ``p`` the nonlinear parameters and ``n - p`` the residual
+    degrees of freedom of the projected problem (every linear coefficient counted). Inf
+    when the normal matrix is singular.
+    """
+    p = g.size
+    n_dof = prob.data_t.size - prob.data_t.shape[1] * (p + prob.n_extra) - p
+    try:
+        off2 = float(g @ np.linalg.solve(jtj, g))
+    except np.linalg.LinAlgError:
+        return float("inf")
+    rest = cost - off2
+    if not (np.isfinite(off2) and off2 >= 0) or n_dof <= 0:
+        return float("inf")
+    if rest <= 0:
+        return 0.0 if off2 == 0 else float("inf")
+    return float(np.sqrt((off2 / p) / (rest / n_dof)))
+
+
 def levenberg_marquardt(
-    prob: Problem, x: np.ndarray, max_iter: int = 60, rtol: float = 1e-10
+    prob: Problem, x: np.ndarray, max_iter: int = 60, rtol: float = 1e-10,
+    offset_tol: float = RELATIVE_OFFSET_TOL,
 ) -> tuple[np.ndarray, int]:
     """Levenberg-Marquardt on the projected residual with Kaufman's Jacobian.
 
     Works on the normal equations (the Jacobian has few columns), with Marquardt's
-    diagonal scaling (Marquardt 1963). Returns the parameters and the iterations used.
+    diagonal scaling (Marquardt 1963). Stops when the relative offset
+    (:func:`relative_offset`, Bates & Watts 1981) falls below `offset_tol`, when a step
+    lowers the cost by less than `rtol` relatively or moves no parameter by 1e-9
+    relatively, or after `max_iter` iterations. Returns the parameters and the
+    iterations used.
     """
     x = np.asarray(x, float).copy()
     r = prob.residual(x)
@@ -145,8 +200,10 @@ def levenberg_marquardt(
     mu = 1e-3
     it = 0
     for _ in range(max_iter):
-        it += 1
         jtj, g = prob.kaufman_normal(x, r)
+        if relative_offset(prob, jtj, g, cost) < offset_tol:
+            break
+        it += 1
         d = np.diag(jtj).copy()
         d[d <= 0] = 1.0
         improved = False
