@@ -547,8 +547,10 @@ class SharedPoleFit:
         n_live = int(prep.live.sum())
         reweight = prep.noise_from != "pre-trigger samples" and n_live > 1
         seeds = asked if x0 is None and asked.size else None
+        refit = x0 is not None  # a warm start: the final refinement is deferred
         core = fit_core(y, t_rel, fs, f_max=f_search, x0=x0, max_order=self.max_order,
-                        polish=not reweight, seeds_hz=seeds, protect_hz=asked)
+                        polish=not reweight, seeds_hz=seeds, protect_hz=asked,
+                        defer_polish=refit)
         weight = prep.weight
         if reweight:
             # reweight each channel by its residual RMS and refine (equal noise after weighting)
@@ -561,7 +563,7 @@ class SharedPoleFit:
             pencil = core.pencil
             y = _stack(prep, weight)
             core = fit_core(y, t_rel, fs, f_max=f_search, x0=core.x, max_order=self.max_order,
-                            protect_hz=asked)
+                            protect_hz=asked, defer_polish=refit)
             core.pencil = pencil
             prep.noise_from = "residual RMS of a first fit"
         return core, weight

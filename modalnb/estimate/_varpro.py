@@ -286,7 +286,9 @@ class Refinement:
     """The final refinement of the poles: its start, budget and scipy's result.
 
     ``x`` is the point it returns; :meth:`minimizer_result` gives the same refinement as
-    an ``lmfit.MinimizerResult`` (built only when asked: importing lmfit is slow).
+    an ``lmfit.MinimizerResult`` (built only when asked: importing lmfit is slow). A
+    ``deferred`` refinement (a refit's) was not run: ``x`` is its start, and
+    :meth:`minimizer_result` runs it from there when asked.
     """
 
     prob: Problem
@@ -295,6 +297,7 @@ class Refinement:
     x: np.ndarray
     scipy_result: Any
     aborted: bool
+    deferred: bool = False
     _lmfit: Any = None
 
     def minimizer_result(self) -> Any:
