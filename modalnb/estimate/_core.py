@@ -204,10 +204,11 @@ def fit_core(
     reweighted second pass will polish); ``minimizer`` is then None. `seeds_hz` adds a starting pole (1 %
     damping) at each frequency not already within 1 % of a found one; a mode within 3 %
     of a frequency in `protect_hz` (``ASKED_TOL``) is never dropped as weak (the user
-    asked for it). With `defer_polish` (refits) the final refinement is not run: the
-    table keeps the Levenberg-Marquardt point, converged to Bates & Watts' relative offset
-    (:data:`._varpro.RELATIVE_OFFSET_TOL`), and ``minimizer`` runs the refinement when its
-    lmfit report is asked.
+    asked for it). The final refinement runs only when the prune loop ended on its
+    iteration budget: after convergence to Bates & Watts' relative offset
+    (:data:`._varpro.RELATIVE_OFFSET_TOL`), and always with `defer_polish` (refits), the
+    table keeps the Levenberg-Marquardt point and ``minimizer`` runs the refinement when
+    its lmfit report is asked.
     """
     y_t_full = np.ascontiguousarray(y.T)
     d = compress(y, MAX_COMPONENTS if x0 is None else min(MAX_COMPONENTS, len(x0) + 4))
@@ -314,7 +315,9 @@ def fit_core(
     # final polish: scipy's least_squares (a converged start: few evaluations); users get
     # it as an lmfit result, built when asked. A deferred polish (refits) only records the
     # start: the table keeps the converged LM point, the refinement runs when asked.
-    if polish and defer_polish:
+    if polish and (defer_polish or converged):
+        # converged to the relative offset, the refinement could move the poles by a
+        # negligible fraction of a standard deviation only: it runs when its report is asked
         res = Refinement(prob, x.copy(), max_nfev or 10 * (x.size + 1), x.copy(), None, False,
                          deferred=True)
     elif polish:

@@ -20,6 +20,13 @@ from .._errors import EstimationError
 from ._basis import basis_du_matrix, basis_matrix, natural
 
 
+def _finite_or_zero(a: np.ndarray) -> np.ndarray:
+    """`a` with NaN and inf set to 0 (a copy only when there are any: the usual case is none)."""
+    if np.isfinite(np.sum(a)):
+        return a
+    return np.nan_to_num(a, nan=0.0, posinf=0.0, neginf=0.0)
+
+
 @dataclass
 class Problem:
     """Data of one VARPRO fit: signals (P, N) in weighted units, times from the window start."""
@@ -97,7 +104,7 @@ class Problem:
             dmat4 = dmat.reshape(t.size, m, 4)
             dmat4[:, :, 0:2] = dsig.reshape(t.size, m, 2)
             dmat4[:, :, 2:4] = ddu.reshape(t.size, m, 2)
-        return q, qtd, coef, np.nan_to_num(dmat, nan=0.0, posinf=0.0, neginf=0.0)
+        return q, qtd, coef, _finite_or_zero(dmat)
 
     def kaufman_jacobian(self, x: np.ndarray) -> np.ndarray:
         """Jacobian of the projected residual in Kaufman's (1975) form (N*P, n_params).
@@ -112,7 +119,7 @@ class Problem:
                 k = j // 2
                 g = dmat[:, 2 * j : 2 * j + 2] @ coef[2 * k : 2 * k + 2]  # (N, P)
                 g = g - q @ (q.T @ g)
-                jac[:, j] = np.nan_to_num(-g.ravel(), nan=0.0, posinf=0.0, neginf=0.0)
+                jac[:, j] = _finite_or_zero(-g.ravel())
         return jac
 
     def kaufman_normal(self, x: np.ndarray, r: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
