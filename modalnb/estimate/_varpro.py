@@ -22,8 +22,9 @@ from ._basis import basis_du_matrix, basis_matrix, natural
 
 def _finite_or_zero(a: np.ndarray) -> np.ndarray:
     """`a` with NaN and inf set to 0 (a copy only when there are any: the usual case is none)."""
-    if np.isfinite(np.sum(a)):
-        return a
+    with np.errstate(over="ignore", invalid="ignore"):
+        if np.isfinite(np.sum(a)):
+            return a
     return np.nan_to_num(a, nan=0.0, posinf=0.0, neginf=0.0)
 
 
