@@ -412,7 +412,8 @@ class SharedPoleFit:
     minimizer_result_ : lmfit.MinimizerResult or None
         The final refinement (scipy's trust-region reflective ``least_squares``: Branch,
         Coleman & Li 1999, SIAM J. Sci. Comput. 21(1)) as an lmfit result (Newville et al.
-        2014, LMFIT), built the first time it is read (lmfit is imported only then;
+        2014, LMFIT), built the first time it is read (lmfit is imported only then; after a
+        converged Levenberg-Marquardt it starts from the table's poles and runs then;
         ``fit_report()`` works; parameters
         ``m<k>_sigma``, ``m<k>_u`` are the packed poles of every fitted mode, including
         those outside the band or dropped from the table).
