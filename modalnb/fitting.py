@@ -175,7 +175,8 @@ class ModeFit:
     minimizer_result_ : lmfit.MinimizerResult or None
         The final refinement (scipy's trust-region reflective ``least_squares``: Branch,
         Coleman & Li 1999, SIAM J. Sci. Comput. 21(1)) as an lmfit result (Newville et al.
-        2014, LMFIT), built the first time it is read (lmfit is imported only then;
+        2014, LMFIT), built the first time it is read (lmfit is imported only then; after a
+        converged Levenberg-Marquardt it starts from the table's poles and runs then;
         ``fit_report()`` works; parameters ``m<k>_sigma``,
         ``m<k>_u`` are the packed poles of every fitted mode, including those outside the
         band or dropped from the table).
@@ -448,8 +449,11 @@ def fit_modes(
        orders, kept when stable across orders and energetic (energy ranking).
     3. Refinement: variable projection (Golub & Pereyra 1973; shared poles over data
        sets, Golub & LeVeque 1979) with Kaufman's (1975) Jacobian, Levenberg-Marquardt
-       then a final ``scipy.optimize.least_squares`` pass (trust-region reflective,
-       Branch, Coleman & Li 1999). A mode is (sigma, u = wd^2), continuous through
+       until Bates & Watts' (1981) relative offset is below 0.001 (the step left is a
+       negligible fraction of a standard deviation); a final ``scipy.optimize.least_squares``
+       pass (trust-region reflective, Branch, Coleman & Li 1999) runs when the iteration
+       budget ended the loop first, otherwise from the converged point when its report is
+       asked. A mode is (sigma, u = wd^2), continuous through
        critical damping (repeated-pole basis, Fermo et al. 2013); modes whose
        energy is within noise are dropped.
     4. Residue of an oscillating mode: ``x(t) = 2 Re(r exp(lambda t))`` with t = 0 the

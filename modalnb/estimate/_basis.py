@@ -67,18 +67,68 @@ def mode_columns_du(
     return -0.5 * t * s, (t * c - s) / (2.0 * u)
 
 
+def _oscillating(t: np.ndarray, sigma: np.ndarray, u: np.ndarray) -> np.ndarray:
+    """Modes evaluated in closed form by the vectorised cos/sin branch (u > 0, no series)."""
+    tmax = float(t[-1]) if t.size else 0.0
+    return (u > 0) & (np.abs(u * tmax * tmax) >= SERIES_LIMIT)
+
+
 def basis_matrix(
     t: np.ndarray, sigma: np.ndarray, u: np.ndarray, n_extra: int = 1
 ) -> np.ndarray:
-    """Design matrix (N, 2M + n_extra): mode columns, then offset (and drift) columns."""
-    m = len(sigma)
+    """Design matrix (N, 2M + n_extra): mode columns, then offset (and drift) columns.
+
+    Oscillating modes are evaluated together (one exp, cos and sin of the (N, M) phase
+    array); the others per mode by :func:`mode_columns` (same values).
+
+    Examples
+    --------
+    >>> t = np.linspace(0.0, 1.0, 6)
+    >>> phi = basis_matrix(t, np.array([2.0, 3.0]), np.array([400.0, -4.0]))
+    >>> c, s = mode_columns(t, 2.0, 400.0)
+    >>> bool(np.allclose(phi[:, 0], c) and np.allclose(phi[:, 1], s)), phi.shape
+    (True, (6, 5))
+    """
+    sigma = np.asarray(sigma, float)
+    u = np.asarray(u, float)
+    m = sigma.size
     out = np.empty((t.size, 2 * m + n_extra))
-    for k in range(m):
+    osc = _oscillating(t, sigma, u)
+    if osc.any():
+        k = np.nonzero(osc)[0]
+        w = np.sqrt(u[k])
+        e = np.exp(np.outer(t, -sigma[k]))
+        wt = np.outer(t, w)
+        out[:, 2 * k] = e * np.cos(wt)
+        out[:, 2 * k + 1] = e * np.sin(wt) / w
+    for k in np.nonzero(~osc)[0]:
         out[:, 2 * k], out[:, 2 * k + 1] = mode_columns(t, float(sigma[k]), float(u[k]))
     if n_extra >= 1:
         out[:, 2 * m] = 1.0
     if n_extra >= 2:
         out[:, 2 * m + 1] = t / (t[-1] if t[-1] > 0 else 1.0)
+    return out
+
+
+def basis_du_matrix(t: np.ndarray, sigma: np.ndarray, u: np.ndarray, phi: np.ndarray) -> np.ndarray:
+    """Derivatives (N, 2M) of every mode's two columns of `phi` with respect to its ``u``.
+
+    Column ``2k`` is d(c_k)/du_k and ``2k + 1`` is d(s_k)/du_k (:func:`mode_columns_du`,
+    vectorised over the oscillating modes).
+    """
+    sigma = np.asarray(sigma, float)
+    u = np.asarray(u, float)
+    m = sigma.size
+    out = np.empty((t.size, 2 * m))
+    osc = _oscillating(t, sigma, u)
+    if osc.any():
+        k = np.nonzero(osc)[0]
+        c, s = phi[:, 2 * k], phi[:, 2 * k + 1]
+        out[:, 2 * k] = -0.5 * t[:, None] * s
+        out[:, 2 * k + 1] = (t[:, None] * c - s) / (2.0 * u[k])
+    for k in np.nonzero(~osc)[0]:
+        out[:, 2 * k], out[:, 2 * k + 1] = mode_columns_du(
+            t, float(sigma[k]), float(u[k]), phi[:, 2 * k], phi[:, 2 * k + 1])
     return out
 
 

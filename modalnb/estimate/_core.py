@@ -17,7 +17,14 @@ from .._errors import EstimationError
 from ._basis import natural
 from ._pencil import PencilOutput, find_poles, initial_modes
 from ._significance import significance_threshold
-from ._varpro import Problem, covariance, levenberg_marquardt, natural_with_cov, refine
+from ._varpro import (
+    Problem,
+    Refinement,
+    covariance,
+    levenberg_marquardt,
+    natural_with_cov,
+    refine,
+)
 
 #: A fitted mode within this fraction of a frequency the user added is that added mode:
 #: a user reads a peak off a spectrum plot to a few per cent; 3 % is tighter than the 5 %
@@ -30,16 +37,22 @@ ASKED_TOL = 0.03
 #: scale of that order works (a conditioning choice, common practice).
 W_SCALE_FRACTION = 10.0
 
-#: Rounds of "refine, drop invalid or insignificant modes, refine again". Each round drops
-#: at least one mode or stops; 12 covers the few spurious modes of an over-specified
-#: pencil (common practice; a fit that needs more keeps what it has).
+#: Rounds of "refine, drop invalid or insignificant modes, refine again" that drop modes;
+#: 12 covers the few spurious modes of an over-specified pencil (common practice; a fit
+#: that needs more keeps what it has).
 MAX_PRUNE_ROUNDS = 12
 
-#: Levenberg-Marquardt iterations over all prune rounds together (four full rounds of 60):
-#: a fit that converges needs one or two rounds; data the model does not fit (a second tap
-#: in the window) otherwise drop one mode per round at 60 iterations each. The budget bounds
-#: the time; such a fit ends with the status "model does not fit" (common practice).
-MAX_PRUNE_ITERATIONS = 240
+#: Levenberg-Marquardt iterations between two looks at the modes (validity, duplicates,
+#: significance): a mode that is going to be dropped is dropped before the others have
+#: converged around it, so no round spends long on a model it will change.
+ROUND_ITER = 12
+
+#: Most iterations on one set of modes, and over the whole prune loop: the loop's cost is
+#: bounded whatever the data (a misfit window that drops one mode per round ends after at
+#: most this many normal-matrix builds); a fit stopped by a budget says so in
+#: ``CoreResult.converged`` (common practice: a well-posed fit converges in a few dozen).
+MAX_MODEL_ITER = 60
+MAX_TOTAL_ITER = 180
 
 #: Most residual evaluations of the final refinement: from a converged start it needs two
 #: or three on every campaign of the bench suite; a start that has not converged (data the
@@ -76,6 +89,11 @@ class CoreResult:
     n_tot: int
     minimizer: Any
     pencil: PencilOutput | None
+    #: False when the prune loop ended on an iteration budget, not on convergence
+    converged: bool = True
+    #: prune-loop rounds and LM iterations spent (for budgets and reports)
+    rounds: int = 0
+    iterations: int = 0
 
 
 def compress(y: np.ndarray, max_components: int = MAX_COMPONENTS) -> np.ndarray:
@@ -89,26 +107,50 @@ def compress(y: np.ndarray, max_components: int = MAX_COMPONENTS) -> np.ndarray:
     return top.T @ y
 
 
-def _mode_energy(prob: Problem, x: np.ndarray) -> np.ndarray:
-    phi = prob.basis(x)
-    coef, *_ = np.linalg.lstsq(phi, prob.data_t, rcond=None)
-    m = x.size // 2
-    e = np.empty(m)
-    for k in range(m):
-        part = phi[:, 2 * k : 2 * k + 2] @ coef[2 * k : 2 * k + 2]
-        e[k] = float(np.sum(part**2))
-    return e
+def _mode_stats(prob: Problem, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Fitted energy of each mode and the increase of the (compressed) RSS without it.
 
-
-def _rss_increase(prob: Problem, x: np.ndarray) -> np.ndarray:
-    """Increase of the (compressed) RSS when each mode is left out, poles of the others fixed.
-
-    This is the likelihood-ratio statistic of the mode (times s^2); unlike the mode's own
-    fitted energy it stays small for pairs of spurious modes that cancel each other.
+    The increase is the one when the mode's two columns are left out and the other poles
+    are kept: the likelihood-ratio statistic of the mode (times s^2); unlike the mode's
+    own fitted energy it stays small for pairs of spurious modes that cancel each other.
+    It comes exactly from the full fit, without refitting: leaving out a block ``k`` of
+    regressors raises the RSS by ``b_k^T V_kk^-1 b_k`` per signal, with ``b_k`` the block's
+    coefficients and ``V = (Phi^T Phi)^-1`` (the extra sum of squares of a subset of
+    coefficients; Seber & Lee 2003, Linear Regression Analysis, 2nd ed., Wiley, sec. 4.5).
     """
     phi = prob.basis(x)
     d = prob.data_t
+    q, rr = np.linalg.qr(phi)
+    m = x.size // 2
+    try:
+        from scipy.linalg import solve_triangular
+
+        rinv = solve_triangular(rr, np.eye(rr.shape[0]))
+        if not np.all(np.isfinite(rinv)):
+            raise np.linalg.LinAlgError
+    except (np.linalg.LinAlgError, ValueError):
+        return _mode_stats_direct(prob, x)
+    coef = rinv @ (q.T @ d)
+    v = rinv @ rinv.T
+    energy = np.empty(m)
+    lr = np.empty(m)
+    for k in range(m):
+        blk = slice(2 * k, 2 * k + 2)
+        part = phi[:, blk] @ coef[blk]
+        energy[k] = float(np.sum(part**2))
+        try:
+            lr[k] = float(np.sum(coef[blk] * np.linalg.solve(v[blk, blk], coef[blk])))
+        except np.linalg.LinAlgError:
+            lr[k] = 0.0
+    return energy, np.maximum(lr, 0.0)
+
+
+def _mode_stats_direct(prob: Problem, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`_mode_stats` by refitting without each mode (for a rank-deficient basis)."""
+    phi = prob.basis(x)
+    d = prob.data_t
     base = float(np.sum(d**2))
+    coef, *_ = np.linalg.lstsq(phi, d, rcond=None)
 
     def rss(cols: np.ndarray) -> float:
         q, _ = np.linalg.qr(cols)
@@ -116,12 +158,19 @@ def _rss_increase(prob: Problem, x: np.ndarray) -> np.ndarray:
 
     r0 = rss(phi)
     m = x.size // 2
+    energy = np.empty(m)
     out = np.empty(m)
     for k in range(m):
+        energy[k] = float(np.sum((phi[:, 2 * k : 2 * k + 2] @ coef[2 * k : 2 * k + 2]) ** 2))
         keep = np.ones(phi.shape[1], bool)
         keep[2 * k : 2 * k + 2] = False
         out[k] = rss(phi[:, keep]) - r0
-    return np.maximum(out, 0.0)
+    return energy, np.maximum(out, 0.0)
+
+
+def _rss_increase(prob: Problem, x: np.ndarray) -> np.ndarray:
+    """Increase of the (compressed) RSS when each mode is left out (:func:`_mode_stats`)."""
+    return _mode_stats(prob, x)[1]
 
 
 def full_rss(y_t: np.ndarray, prob: Problem, x: np.ndarray) -> float:
@@ -155,6 +204,7 @@ def fit_core(
     polish: bool = True,
     seeds_hz: np.ndarray | None = None,
     protect_hz: np.ndarray | None = None,
+    defer_polish: bool = False,
 ) -> CoreResult:
     """Shared poles of the weighted signals `y` (P, N) at times `t` from the window start.
 
@@ -164,7 +214,11 @@ def fit_core(
     reweighted second pass will polish); ``minimizer`` is then None. `seeds_hz` adds a starting pole (1 %
     damping) at each frequency not already within 1 % of a found one; a mode within 3 %
     of a frequency in `protect_hz` (``ASKED_TOL``) is never dropped as weak (the user
-    asked for it).
+    asked for it). The final refinement runs only when the prune loop ended on its
+    iteration budget: after convergence to Bates & Watts' relative offset
+    (:data:`._varpro.RELATIVE_OFFSET_TOL`), and always with `defer_polish` (refits), the
+    table keeps the Levenberg-Marquardt point and ``minimizer`` runs the refinement when
+    its lmfit report is asked.
     """
     y_t_full = np.ascontiguousarray(y.T)
     d = compress(y, MAX_COMPONENTS if x0 is None else min(MAX_COMPONENTS, len(x0) + 4))
@@ -172,7 +226,6 @@ def fit_core(
     w_scale = 2 * np.pi * fs / W_SCALE_FRACTION
     prob = Problem(np.ascontiguousarray(d.T), t, w_scale, n_extra)
     pencil = None
-    x0_given = x0
     if x0 is None:
         pencil = find_poles(d, fs, f_max, max_order=max_order)
         modes = initial_modes(pencil.candidates, fs)
@@ -194,20 +247,29 @@ def fit_core(
     thr = significance_threshold(r)
     x = np.asarray(x0, float)
     res = None
-    budget = MAX_PRUNE_ITERATIONS
-    for rnd in range(MAX_PRUNE_ROUNDS):
-        # early rounds only need to separate real modes from spurious ones
-        x, used = levenberg_marquardt(
-            prob, x, max_iter=max(min(12 if rnd == 0 and x0_given is None else 60, budget), 1))
-        budget -= used
+    pruned = 0
+    model_iter = 0
+    total_iter = 0
+    rounds = 0
+    converged = False
+    while True:
+        rounds += 1
+        # a look at the modes every ROUND_ITER iterations (early rounds only need to
+        # separate real modes from spurious ones); iterations are bounded per model and
+        # over the whole loop
+        budget = min(ROUND_ITER, MAX_MODEL_ITER - model_iter, MAX_TOTAL_ITER - total_iter)
+        x, its = levenberg_marquardt(prob, x, max_iter=max(budget, 0))
+        model_iter += its
+        total_iter += its
+        stopped = its < budget  # on a convergence criterion, not on the budget
         ok = _valid(prob, x, fs)
-        energy = _mode_energy(prob, x)
+        energy, lr = _mode_stats(prob, x)
         n_tot = y.size
         n_lin = y.shape[0] * (x.size + n_extra)
         rss = full_rss(y_t_full, prob, x)
         s2 = rss / max(n_tot - n_lin - x.size, 1)
         signif = energy / max(s2, 1e-300)
-        lr = _rss_increase(prob, x) / max(s2, 1e-300)
+        lr = lr / max(s2, 1e-300)
         # duplicates: two modes converged onto one pole
         sigma, u = prob.unpack(x)
         dup = np.zeros(sigma.size, bool)
@@ -226,10 +288,14 @@ def fit_core(
             asked = np.array([np.any(np.abs(f - np.asarray(protect_hz)) < ASKED_TOL * np.asarray(protect_hz))
                               for f in fn_now])
             weak &= ~asked
+        out_of_budget = total_iter >= MAX_TOTAL_ITER or pruned >= MAX_PRUNE_ROUNDS
         if not drop.any() and not weak.any():
-            break
-        if budget <= 0 and not drop.any():
-            break  # the iteration budget is spent: keep the valid modes as they are
+            if stopped or model_iter >= MAX_MODEL_ITER or out_of_budget:
+                converged = stopped
+                break
+            continue  # the same modes, not converged yet: iterate on
+        if out_of_budget and not drop.any():
+            break  # budget spent: keep what it has (converged stays False)
         if drop.any():
             keep = ~drop
         else:
@@ -246,9 +312,25 @@ def fit_core(
             )
         idx = np.repeat(np.nonzero(keep)[0] * 2, 2) + np.tile([0, 1], int(keep.sum()))
         x = x[idx]
+        pruned += 1
+        model_iter = 0
+        if out_of_budget:
+            # modes removed after the budget: the statistics of the kept ones
+            energy, _ = _mode_stats(prob, x)
+            n_lin = y.shape[0] * (x.size + n_extra)
+            rss = full_rss(y_t_full, prob, x)
+            s2 = rss / max(n_tot - n_lin - x.size, 1)
+            signif = energy / max(s2, 1e-300)
+            break
     # final polish: scipy's least_squares (a converged start: few evaluations); users get
-    # it as an lmfit result, built when asked
-    if polish:
+    # it as an lmfit result, built when asked. A deferred polish (refits) only records the
+    # start: the table keeps the converged LM point, the refinement runs when asked.
+    if polish and (defer_polish or converged):
+        # converged to the relative offset, the refinement could move the poles by a
+        # negligible fraction of a standard deviation only: it runs when its report is asked
+        res = Refinement(prob, x.copy(), max_nfev or 10 * (x.size + 1), x.copy(), None, False,
+                         deferred=True)
+    elif polish:
         res = refine(prob, x, max_nfev=max_nfev or min(10 * (x.size + 1), MAX_REFINE_NFEV))
         x_l = res.x
         if float(np.sum(prob.residual(x_l) ** 2)) <= float(np.sum(prob.residual(x) ** 2)):
@@ -261,5 +343,6 @@ def fit_core(
     return CoreResult(
         x=x, prob=prob, cov=cov, fn=fn, zeta=zeta, fn_std=fn_std, zeta_std=zeta_std,
         sigma=sigma, u=u, significance=signif, s2=s2, rss=rss, n_tot=n_tot,
-        minimizer=res, pencil=pencil,
+        minimizer=res, pencil=pencil, converged=converged, rounds=rounds,
+        iterations=total_iter,
     )

@@ -17,7 +17,15 @@ from typing import Any
 import numpy as np
 
 from .._errors import EstimationError
-from ._basis import basis_matrix, mode_columns_du, natural
+from ._basis import basis_du_matrix, basis_matrix, natural
+
+
+def _finite_or_zero(a: np.ndarray) -> np.ndarray:
+    """`a` with NaN and inf set to 0 (a copy only when there are any: the usual case is none)."""
+    with np.errstate(over="ignore", invalid="ignore"):
+        if np.isfinite(np.sum(a)):
+            return a
+    return np.nan_to_num(a, nan=0.0, posinf=0.0, neginf=0.0)
 
 
 @dataclass
@@ -43,13 +51,31 @@ class Problem:
         sigma, u = self.unpack(x)
         return basis_matrix(self.t, sigma, u, self.n_extra)
 
-    def residual(self, x: np.ndarray) -> np.ndarray:
-        with np.errstate(over="ignore", invalid="ignore"):
+    def _factor(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """``(Phi, Q, R)`` of the basis at `x` (thin QR), kept for the last point asked.
+
+        A Levenberg-Marquardt step evaluates the residual at a trial point and, once it is
+        accepted, the normal equations at the same point: the one-entry cache saves the
+        second basis and QR.
+        """
+        key = np.asarray(x, float).tobytes()
+        cache = getattr(self, "_cache", None)
+        if cache is not None and cache[0] == key:
+            return cache[1]
+        with np.errstate(over="ignore", invalid="ignore", under="ignore"):
             phi = self.basis(x)
-        if not np.all(np.isfinite(phi)):
+        if np.all(np.isfinite(phi)):
+            q, rr = np.linalg.qr(phi)
+        else:
+            q = rr = None
+        self._cache = (key, (phi, q, rr))
+        return phi, q, rr
+
+    def residual(self, x: np.ndarray) -> np.ndarray:
+        phi, q, _ = self._factor(x)
+        if q is None:
             # a trial step to a growing exponential: worse than any real fit
             return np.full(self.data_t.size, 1e100)
-        q, _ = np.linalg.qr(phi)
         r = self.data_t - q @ (q.T @ self.data_t)
         return r.ravel()
 
@@ -61,24 +87,25 @@ class Problem:
         """
         sigma, u = self.unpack(np.asarray(x, float))
         t = self.t
+        phi, q, rr = self._factor(x)
         with np.errstate(over="ignore", invalid="ignore", under="ignore"):
-            phi = basis_matrix(t, sigma, u, self.n_extra)
-            q, rr = np.linalg.qr(phi)
+            if q is None:
+                phi = np.nan_to_num(phi, nan=0.0, posinf=0.0, neginf=0.0)
+                q, rr = np.linalg.qr(phi)
             qtd = q.T @ self.data_t
             if np.all(np.abs(np.diag(rr)) > 0):
                 coef = np.linalg.solve(rr, qtd)
             else:
                 coef = np.linalg.lstsq(phi, self.data_t, rcond=None)[0]
-            dmat = np.empty((t.size, 4 * sigma.size))
-            for k in range(sigma.size):
-                c0, c1 = phi[:, 2 * k], phi[:, 2 * k + 1]
-                # d/dsigma of exp(-sigma t) f(t) is -t exp(-sigma t) f(t)
-                dmat[:, 4 * k] = -(t * c0) * self.w_scale
-                dmat[:, 4 * k + 1] = -(t * c1) * self.w_scale
-                d0, d1 = mode_columns_du(t, sigma[k], u[k], c0, c1)
-                dmat[:, 4 * k + 2] = d0 * self.w_scale**2
-                dmat[:, 4 * k + 3] = d1 * self.w_scale**2
-        return q, qtd, coef, np.nan_to_num(dmat, nan=0.0, posinf=0.0, neginf=0.0)
+            m = sigma.size
+            dmat = np.empty((t.size, 4 * m))
+            # d/dsigma of exp(-sigma t) f(t) is -t exp(-sigma t) f(t)
+            dsig = -(t[:, None] * phi[:, : 2 * m]) * self.w_scale
+            ddu = basis_du_matrix(t, sigma, u, phi) * self.w_scale**2
+            dmat4 = dmat.reshape(t.size, m, 4)
+            dmat4[:, :, 0:2] = dsig.reshape(t.size, m, 2)
+            dmat4[:, :, 2:4] = ddu.reshape(t.size, m, 2)
+        return q, qtd, coef, _finite_or_zero(dmat)
 
     def kaufman_jacobian(self, x: np.ndarray) -> np.ndarray:
         """Jacobian of the projected residual in Kaufman's (1975) form (N*P, n_params).
@@ -93,7 +120,7 @@ class Problem:
                 k = j // 2
                 g = dmat[:, 2 * j : 2 * j + 2] @ coef[2 * k : 2 * k + 2]  # (N, P)
                 g = g - q @ (q.T @ g)
-                jac[:, j] = np.nan_to_num(-g.ravel(), nan=0.0, posinf=0.0, neginf=0.0)
+                jac[:, j] = _finite_or_zero(-g.ravel())
         return jac
 
     def kaufman_normal(self, x: np.ndarray, r: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
@@ -132,13 +159,48 @@ class Problem:
         return coef
 
 
+#: Relative-offset convergence limit of the Levenberg-Marquardt loop (Bates & Watts 1981,
+#: "A relative offset convergence criterion for nonlinear least squares", Technometrics
+#: 23(2)): the distance left to the least-squares point, measured against the statistical
+#: uncertainty of the parameters; they recommend 0.001, at which the remaining change is
+#: a negligible fraction of a standard deviation.
+RELATIVE_OFFSET_TOL = 1e-3
+
+
+def relative_offset(prob: Problem, jtj: np.ndarray, g: np.ndarray, cost: float) -> float:
+    """Bates & Watts' relative offset ``sqrt(|P_J r|^2 / p) / sqrt(|r - P_J r|^2 / (n - p))``.
+
+    ``|P_J r|^2 = g^T (J^T J)^-1 g`` with ``g = J^T r`` (the part of the residual the
+    parameters can still remove), ``p`` the nonlinear parameters and ``n - p`` the residual
+    degrees of freedom of the projected problem (every linear coefficient counted). Inf
+    when the normal matrix is singular.
+    """
+    p = g.size
+    n_dof = prob.data_t.size - prob.data_t.shape[1] * (p + prob.n_extra) - p
+    try:
+        off2 = float(g @ np.linalg.solve(jtj, g))
+    except np.linalg.LinAlgError:
+        return float("inf")
+    rest = cost - off2
+    if not (np.isfinite(off2) and off2 >= 0) or n_dof <= 0:
+        return float("inf")
+    if rest <= 0:
+        return 0.0 if off2 == 0 else float("inf")
+    return float(np.sqrt((off2 / p) / (rest / n_dof)))
+
+
 def levenberg_marquardt(
-    prob: Problem, x: np.ndarray, max_iter: int = 60, rtol: float = 1e-10
+    prob: Problem, x: np.ndarray, max_iter: int = 60, rtol: float = 1e-10,
+    offset_tol: float = RELATIVE_OFFSET_TOL,
 ) -> tuple[np.ndarray, int]:
     """Levenberg-Marquardt on the projected residual with Kaufman's Jacobian.
 
     Works on the normal equations (the Jacobian has few columns), with Marquardt's
-    diagonal scaling (Marquardt 1963). Returns the parameters and the iterations used.
+    diagonal scaling (Marquardt 1963). Stops when the relative offset
+    (:func:`relative_offset`, Bates & Watts 1981) falls below `offset_tol`, when a step
+    lowers the cost by less than `rtol` relatively or moves no parameter by 1e-9
+    relatively, or after `max_iter` iterations. Returns the parameters and the
+    iterations used.
     """
     x = np.asarray(x, float).copy()
     r = prob.residual(x)
@@ -146,8 +208,10 @@ def levenberg_marquardt(
     mu = 1e-3
     it = 0
     for _ in range(max_iter):
-        it += 1
         jtj, g = prob.kaufman_normal(x, r)
+        if relative_offset(prob, jtj, g, cost) < offset_tol:
+            break
+        it += 1
         d = np.diag(jtj).copy()
         d[d <= 0] = 1.0
         improved = False
@@ -176,6 +240,37 @@ def levenberg_marquardt(
     return x, it
 
 
+def one_step(prob: Problem, x: np.ndarray) -> np.ndarray:
+    """One Gauss-Newton step ``x - (J^T J)^-1 J^T r`` from `x` (Kaufman's normal equations).
+
+    The linearised pole update of :meth:`Problem.kaufman_normal`; NaN parameters where
+    the normal matrix is singular or the step leaves the finite numbers (a mode that
+    this data does not determine).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> t = np.arange(512) / 512.0
+    >>> y = np.exp(-2.0 * t) * np.cos(2 * np.pi * 20.0 * t)
+    >>> prob = Problem(np.ascontiguousarray(y[:, None]), t, 2 * np.pi * 100.0)
+    >>> x = one_step(prob, prob.pack([2.01], [(2 * np.pi * 20.001) ** 2]))
+    >>> sigma, u = prob.unpack(x)
+    >>> round(float(sigma[0]), 4), round(float(np.sqrt(u[0]) / (2 * np.pi)), 5)
+    (2.0, 20.0)
+    """
+    x = np.asarray(x, float)
+    jtj, g = prob.kaufman_normal(x)
+    # Marquardt's diagonal scaling: solve the equilibrated system (conditioning only)
+    d = np.sqrt(np.abs(np.diag(jtj)))
+    d[d <= 0] = 1.0
+    try:
+        dx = -np.linalg.solve(jtj / np.outer(d, d), g / d) / d
+    except np.linalg.LinAlgError:
+        return np.full_like(x, np.nan)
+    out = x + dx
+    return out if np.all(np.isfinite(out)) else np.full_like(x, np.nan)
+
+
 LSQ_TOL = 1e-10
 """ftol, xtol and gtol of the final refinement (common practice: tight, the start has converged)."""
 
@@ -199,7 +294,9 @@ class Refinement:
     """The final refinement of the poles: its start, budget and scipy's result.
 
     ``x`` is the point it returns; :meth:`minimizer_result` gives the same refinement as
-    an ``lmfit.MinimizerResult`` (built only when asked: importing lmfit is slow).
+    an ``lmfit.MinimizerResult`` (built only when asked: importing lmfit is slow). A
+    ``deferred`` refinement (a refit's) was not run: ``x`` is its start, and
+    :meth:`minimizer_result` runs it from there when asked.
     """
 
     prob: Problem
@@ -208,6 +305,7 @@ class Refinement:
     x: np.ndarray
     scipy_result: Any
     aborted: bool
+    deferred: bool = False
     _lmfit: Any = None
 
     def minimizer_result(self) -> Any:
