@@ -225,3 +225,25 @@ def test_the_current_folder_is_refused_before_the_work(tmp_path, monkeypatch):
     assert proc.returncode == 2 and len(proc.stderr.strip().splitlines()) == 1, proc.stderr
     assert "fitting" not in proc.stderr
     assert sorted(p.name for p in tmp_path.iterdir()) == ["keep.txt"]
+
+
+def test_analysis_export_one_set_and_report_alone(sets, tmp_path):
+    """Analysis.export writes the table and the report as one set; the report alone
+    replaces only the report (the table files and the user's file stay)."""
+    from modalnb.io import open_records
+    from modalnb.session import Analysis
+
+    rec, _ = sets
+    a = Analysis(open_records(rec["a"]), recipe_path=tmp_path / "r.json")
+    out = tmp_path / "out"
+    files = a.export(out)
+    assert sorted(files) == sorted(OUTPUT_FILES)
+    (out / "notes.txt").write_text("mine\n")
+    before = {n: (out / n).stat().st_ino for n in OUTPUT_FILES}
+    a.export(out, table=False)
+    assert sorted(p.name for p in out.iterdir()) == sorted([*OUTPUT_FILES, "notes.txt"])
+    after = {n: (out / n).stat().st_ino for n in OUTPUT_FILES}
+    assert after["report.html"] != before["report.html"]  # a new report
+    # the table files are carried over untouched (hard links to the same files)
+    assert all(after[n] == before[n] for n in OUTPUT_FILES if n != "report.html")
+    assert _siblings(out) == []
