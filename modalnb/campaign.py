@@ -662,7 +662,7 @@ def fit_campaign(
         set's modes paired with no reference mode, one line), ``n_modes``, ``records``;
         the manifest labels as coords over ``set``. Over ``mode``:
         ``reference_frequency_hz``, ``reference_damping_ratio``. ``attrs``:
-        ``campaign_recipe`` (JSON), ``reference``.
+        ``campaign_recipe`` (JSON), ``reference``, ``manifest`` (its absolute path).
 
     Examples
     --------
@@ -727,7 +727,8 @@ def fit_campaign(
         _run_sets(jobs, workers, scheduler, report)
     finally:
         bar.close()
-    ds = _assemble(sets, results, ref_given, ref_source, tolerance, base, per_set)
+    ds = _assemble(sets, results, ref_given, ref_source, tolerance, base, per_set,
+                   str(Path(manifest).resolve()))
     if out_dir is not None:
         write_campaign_files(ds, out_dir)
     return ds
@@ -735,7 +736,7 @@ def fit_campaign(
 
 def _assemble(sets: list[CampaignSet], results: list[dict[str, Any] | None],
               ref_given: dict[str, Any] | None, ref_source: str, tolerance: Any,
-              base: Recipe, per_set: dict[str, dict[int, bool]]) -> xr.Dataset:
+              base: Recipe, per_set: dict[str, dict[int, bool]], manifest_path: str) -> xr.Dataset:
     res = [r if r is not None else {"status": "not run (interrupted)"} for r in results]
     ref = ref_given
     if ref is None:
@@ -797,6 +798,7 @@ def _assemble(sets: list[CampaignSet], results: list[dict[str, Any] | None],
     dv["reference_damping_ratio"] = ("mode", np.asarray(ref["damping_ratio"] if ref else [], float))
     ds = xr.Dataset(dv, coords=coords)
     ds.attrs["reference"] = ref_source or "none (no set fitted)"
+    ds.attrs["manifest"] = manifest_path
     ds.attrs["campaign_recipe"] = json.dumps({
         "format": CAMPAIGN_RECIPE_FORMAT,
         "version": 1,
