@@ -241,7 +241,8 @@ def _cmd_bench(args: argparse.Namespace) -> int:
 
 
 # --- modalnb campaign (test campaigns: many record sets, one recipe) ----------------------
-def _add_campaign_parser(sub: Any, demo_parser: argparse.ArgumentParser) -> None:
+def _add_campaign_parser(sub: Any, demo_parser: argparse.ArgumentParser,
+                         bench_parser: argparse.ArgumentParser) -> None:
     pc = sub.add_parser("campaign", help="fit every record set of a manifest with one recipe and "
                         "track each mode across the sets (dask)")
     pc.add_argument("manifest", help="CSV: columns set, records (path relative to the manifest), then labels")
@@ -260,6 +261,29 @@ def _add_campaign_parser(sub: Any, demo_parser: argparse.ArgumentParser) -> None
     demo_parser.add_argument("--campaign", action="store_true", help="the campaign demo instead: 40 "
                              "generated cast brackets, a few cracked (modalnb campaign on them)")
     demo_parser.set_defaults(func=_cmd_demo_or_campaign)
+    bench_parser.add_argument("--campaign", action="store_true", help="the test-campaign scale figures "
+                              "instead (2 workers vs 1, overhead per set, 1 to 1000 sets; several minutes)")
+    bench_parser.set_defaults(func=_cmd_bench_or_campaign)
+
+
+def _cmd_bench_or_campaign(args: argparse.Namespace) -> int:
+    if not args.campaign:
+        return _cmd_bench(args)
+    from .testing import bench_campaign
+
+    quick = args.quick
+    results = bench_campaign.run_campaign_bench(
+        n_sets=8 if quick else 40, sizes=(1, 5, 10) if quick else (1, 10, 100, 1000),
+        progress=lambda msg: print(f"modalnb bench: {msg}", file=sys.stderr, flush=True))
+    print(bench_campaign.format_campaign_bench(results))
+    if args.json:
+        import json
+
+        from ._files import atomic_write_text
+
+        atomic_write_text(args.json, json.dumps(results, indent=2) + "\n")
+        print(f"wrote {args.json}")
+    return 0
 
 
 def _campaign_summary(ds: Any, out: Path) -> str:
@@ -343,7 +367,6 @@ def build_parser() -> argparse.ArgumentParser:
     pd.add_argument("--out", default="modalnb-demo", help="output folder (default: modalnb-demo)")
     _add_fit_args(pd)
     pd.set_defaults(func=_cmd_demo)
-    _add_campaign_parser(sub, pd)
 
     pb = sub.add_parser("bench", help="accuracy (vs the Cramér-Rao bound) and a suite of generated "
                         "campaigns (speed, refit, accuracy, mode list)")
@@ -355,6 +378,7 @@ def build_parser() -> argparse.ArgumentParser:
     pb.add_argument("--suite-trials", dest="suite_trials", type=int, default=None,
                     help="noise realisations per generated campaign (default 2, or 1 with --quick)")
     pb.set_defaults(func=_cmd_bench)
+    _add_campaign_parser(sub, pd, pb)
     return p
 
 
