@@ -53,6 +53,7 @@ import math
 import os
 import shutil
 import tempfile
+import uuid
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -132,6 +133,10 @@ def _csv_rows(path: Path, what: str) -> list[list[str]]:
 
 
 def _numeric_or_text(values: list[str]) -> list[Any]:
+    try:
+        return [int(v) for v in values]  # whole numbers, none empty: kept as integers
+    except ValueError:
+        pass
     out: list[float] = []
     for v in values:
         if v.strip() == "":
@@ -147,16 +152,17 @@ def _numeric_or_text(values: list[str]) -> list[Any]:
 def read_manifest(manifest: str | os.PathLike[str]) -> list[CampaignSet]:
     """Read a campaign manifest; one-line :class:`ManifestError` naming the row otherwise.
 
-    Rows are counted as in a spreadsheet: the header is row 1. A label column whose every
-    non-empty cell is a number becomes numbers (empty cells NaN); otherwise text.
+    Rows are counted as in a spreadsheet: the header is row 1. A label column of whole
+    numbers (no empty cell) becomes integers; one whose every non-empty cell is a number
+    becomes floats (empty cells NaN); any other column stays text.
 
     Examples
     --------
     >>> import tempfile, pathlib
     >>> d = pathlib.Path(tempfile.mkdtemp())
-    >>> _ = (d / "m.csv").write_text("set,records,temperature_c\\na,a.nc,20\\nb,b.nc,35\\n")
+    >>> _ = (d / "m.csv").write_text("set,records,temperature_c\\na,a.nc,20.5\\nb,b.nc,35\\n")
     >>> [(s.label, s.records.name, s.labels["temperature_c"]) for s in read_manifest(d / "m.csv")]
-    [('a', 'a.nc', 20.0), ('b', 'b.nc', 35.0)]
+    [('a', 'a.nc', 20.5), ('b', 'b.nc', 35.0)]
     """
     path = Path(manifest)
     rows = _csv_rows(path, "manifest")
@@ -313,6 +319,18 @@ def _replace_folder(tmp: Path, target: Path) -> None:
     os.replace(tmp, target)
     if old is not None:
         shutil.rmtree(old, ignore_errors=True)
+
+
+def _remove_stale(sets_dir: Path) -> None:
+    """Remove the half-built set folders a killed run left (``.<set>.new-*``, ``.<set>.old-*``).
+
+    One campaign run per output folder at a time: a second run started on the same folder
+    while one is still writing would remove that run's folders in progress."""
+    if not sets_dir.is_dir():
+        return
+    for p in sets_dir.iterdir():
+        if p.name.startswith(".") and (".new-" in p.name or ".old-" in p.name) and p.is_dir():
+            shutil.rmtree(p, ignore_errors=True)
 
 
 def _fit_set(label: str, records: str, recipe_json: str, set_dir: str | None,
@@ -581,14 +599,14 @@ def _run_sets(jobs: list[tuple[Any, ...]], workers: int | None, scheduler: str |
         n = workers if workers is not None else (os.cpu_count() or 1)
         n = max(1, min(int(n), len(jobs)))
         cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
-                               dashboard_address=None, silence_logs=logging.ERROR)
+                               dashboard_address=":0", silence_logs=logging.ERROR)
         client = Client(cluster)
     else:
         client = Client(scheduler)
     try:
         futures = {}
         for idx, args in jobs:
-            fut = client.submit(_fit_set, *args, pure=False, key=f"modalnb-set-{idx}-{os.getpid()}")
+            fut = client.submit(_fit_set, *args, pure=False, key=f"modalnb-set-{args[0]}-{uuid.uuid4().hex[:12]}")
             futures[fut] = idx
         for fut in as_completed(futures):
             idx = futures[fut]
@@ -701,6 +719,7 @@ def fit_campaign(
     out_dir = Path(out) if out is not None else None
     if out_dir is not None:
         out_dir.mkdir(parents=True, exist_ok=True)
+        _remove_stale(out_dir / "sets")
     recipe_texts = {s.label: _set_recipe_json(base, per_set.get(s.label)) for s in sets}
     results: list[dict[str, Any] | None] = [None] * len(sets)
     jobs = []
@@ -786,7 +805,8 @@ def _assemble(sets: list[CampaignSet], results: list[dict[str, Any] | None],
     coords: dict[str, Any] = {"set": [s.label for s in sets], "mode": np.asarray(modes, dtype=int)}
     for name in (sets[0].labels if sets else {}):
         vals = [s.labels[name] for s in sets]
-        coords[name] = ("set", np.asarray(vals, dtype=float if all(isinstance(v, float) for v in vals) else object))
+        numeric = all(isinstance(v, (int, float)) for v in vals)
+        coords[name] = ("set", np.asarray(vals) if numeric else np.asarray(vals, dtype=object))
     dv: dict[str, Any] = {k: (("set", "mode"), v) for k, v in arr.items()}
     dv["mode_status"] = (("set", "mode"), mstat)
     dv["set_status"] = ("set", np.asarray(set_status, dtype=object))

@@ -51,7 +51,7 @@ def test_local_cluster_two_workers_matches_synchronous_and_truth(parts, tmp_path
 def test_existing_scheduler_by_address(parts):
     from distributed import LocalCluster
 
-    with LocalCluster(n_workers=1, threads_per_worker=1, processes=False, dashboard_address=None) as cluster:
+    with LocalCluster(n_workers=1, threads_per_worker=1, processes=False, dashboard_address=":0") as cluster:
         ds = fit_campaign(parts, scheduler=cluster.scheduler_address)
     assert list(ds["set_status"].values) == ["ok"] * 4
     _check_truth(ds)
@@ -85,6 +85,7 @@ def test_resume_after_sigkill_refits_only_unfinished_sets(tmp_path, monkeypatch)
     assert done == ["P001", "P002", "P003"]  # finished sets kept, nothing half-written
     assert not (out / "tracked_modes.csv").exists()
     inode = {s: os.stat(out / "sets" / s / "modes.nc").st_ino for s in done}
+    (out / "sets" / ".P004.new-leftover").mkdir()  # what a kill during a set's write leaves
 
     calls: list[str] = []
     real = campaign._fit_set
@@ -98,6 +99,7 @@ def test_resume_after_sigkill_refits_only_unfinished_sets(tmp_path, monkeypatch)
     assert calls == ["P004", "P005", "P006"]
     assert list(ds["set_status"].values) == ["ok"] * 6
     assert {s: os.stat(out / "sets" / s / "modes.nc").st_ino for s in done} == inode
+    assert sorted(p.name for p in (out / "sets").iterdir()) == [f"P00{k}" for k in range(1, 7)]
     first = (out / "tracked_modes.csv").read_bytes()
 
     calls.clear()

@@ -136,14 +136,14 @@ def run_campaign_bench(*, n_sets: int = 40, sizes: Sequence[int] = (1, 10, 100, 
                    cpu_overhead_per_set=(c_sync - c_bare) / c_bare,
                    cpu_overhead_per_set_without_files=(c_nofiles - c_bare) / c_bare)
         say("peak memory per worker")
-        with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None,
+        with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0",
                           silence_logs=40) as cluster, Client(cluster) as client:
             fit_campaign(manifest, scheduler=cluster.scheduler_address)
             peaks = client.run(_peak_rss_mb)
         out["peak_rss_per_worker_mb"] = sorted(float(v) for v in peaks.values())
     say("scaling")
     walls, mem = [], []
-    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None,
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0",
                       silence_logs=40) as cluster, Client(cluster) as client:
         client.run(synthetic_set_fit, 0)  # import and warm up every worker once
         base = 10_000
