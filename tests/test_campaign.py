@@ -88,6 +88,7 @@ def test_tracked_frequencies_match_eig_truth_and_crack_is_flagged(brackets, tmp_
     assert recipe["tolerance_pct"] == {"1": 3.0, "2": 3.0, "3": 3.0}
     html = (out / "campaign.html").read_text()
     assert "not a certification" in html and "P003" in html
+    assert len(html) > 1_000_000 and "src=\"http" not in html  # plotly.js embedded: opens offline
 
 
 def test_reference_table_and_missing_mode_verdict(brackets, tmp_path):
@@ -155,9 +156,12 @@ def test_bad_sets_among_good_ones(brackets, tmp_path):
         "gone,nowhere/missing.nc,b\n"
         "broken,corrupt.nc,c\n"
         f"good2,{base / 'parts' / 'P002.nc'},d\n"
+        f"rejected,{base / 'parts' / 'P004.nc'},e\n"
     )
+    (tmp_path / "ov.csv").write_text("set,hit,accepted\nrejected,1,false\nrejected,2,false\nrejected,3,false\n")
     r = subprocess.run([sys.executable, "-m", "modalnb.cli", "campaign", str(manifest), "--out",
-                        str(tmp_path / "out"), "--workers", "0", "--quiet", "--tolerance", "3"],
+                        str(tmp_path / "out"), "--workers", "0", "--quiet", "--tolerance", "3",
+                        "--hit-overrides", str(tmp_path / "ov.csv")],
                        capture_output=True, text=True, timeout=300)
     assert r.returncode == 1, r.stderr  # some sets failed (the files say which)
     import csv
@@ -168,7 +172,9 @@ def test_bad_sets_among_good_ones(brackets, tmp_path):
     assert "missing.nc" in rows["gone"]["status"] and "\n" not in rows["gone"]["status"]
     assert "corrupt.nc" in rows["broken"]["status"]
     assert rows["broken"]["verdict"] == "fail: not fitted"
+    assert "hits are rejected" in rows["rejected"]["status"]
     assert not (tmp_path / "out" / "sets" / "gone").exists()
+    assert "5 sets: 2 fitted, 3 failed" in r.stdout
 
 
 @pytest.mark.parametrize(
