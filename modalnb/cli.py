@@ -259,7 +259,8 @@ def _add_campaign_parser(sub: Any, demo_parser: argparse.ArgumentParser,
     pc.add_argument("--quiet", action="store_true", help="no progress bar")
     pc.set_defaults(func=_cmd_campaign)
     demo_parser.add_argument("--campaign", action="store_true", help="the campaign demo instead: 40 "
-                             "generated cast brackets, a few cracked (modalnb campaign on them)")
+                             "generated cast brackets, a few cracked (modalnb campaign on them; "
+                             "default --out modalnb-campaign-demo)")
     demo_parser.set_defaults(func=_cmd_demo_or_campaign)
     bench_parser.add_argument("--campaign", action="store_true", help="the test-campaign scale figures "
                               "instead (2 workers vs 1, overhead per set, 1 to 1000 sets; several minutes)")
@@ -323,7 +324,7 @@ def _cmd_demo_or_campaign(args: argparse.Namespace) -> int:
     from .demo import production_campaign
     from .export import CAUTION
 
-    out = Path(args.out)
+    out = Path("modalnb-campaign-demo" if args.out == "modalnb-demo" else args.out)
     if not args.quiet:
         print("modalnb demo: generating 40 cast brackets (a few cracked)...", file=sys.stderr)
     manifest = production_campaign(out / "parts-data")
