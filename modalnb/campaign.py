@@ -25,7 +25,9 @@ Pairing
 
 Running
     With dask.distributed: by default an embedded ``LocalCluster`` (worker processes, one
-    thread each, ``workers`` of them: default the CPU count), or an existing cluster at
+    thread each, ``workers`` of them: default the CPU count; in a script, call
+    :func:`fit_campaign` under ``if __name__ == "__main__":``, as dask starts them with
+    ``spawn``), or an existing cluster at
     ``scheduler="tcp://host:8786"``. Workers receive the records' path and the recipe,
     never arrays, and hold one set at a time. ``workers=0`` or
     ``scheduler="synchronous"`` fits the sets one after the other in this process (no
