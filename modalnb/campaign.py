@@ -689,7 +689,7 @@ def fit_campaign(
     >>> import tempfile, pathlib
     >>> from modalnb.demo import production_campaign
     >>> d = pathlib.Path(tempfile.mkdtemp())
-    >>> manifest = production_campaign(d, n_parts=3, seed=1)
+    >>> manifest = production_campaign(d, n_parts=3, seed=1, n_samples=1024)
     >>> ds = fit_campaign(manifest, workers=0, tolerance=5.0)
     >>> list(ds["set_status"].values)
     ['ok', 'ok', 'ok']
@@ -888,7 +888,7 @@ def write_campaign_files(ds: xr.Dataset, out_dir: str | os.PathLike[str]) -> dic
     >>> import tempfile, pathlib
     >>> from modalnb.demo import production_campaign
     >>> d = pathlib.Path(tempfile.mkdtemp())
-    >>> ds = fit_campaign(production_campaign(d, n_parts=2, seed=3), workers=0)
+    >>> ds = fit_campaign(production_campaign(d, n_parts=2, seed=3, n_samples=1024), workers=0)
     >>> sorted(write_campaign_files(ds, d / "out"))  # doctest: +NORMALIZE_WHITESPACE
     ['campaign.html', 'campaign.nc', 'campaign_recipe.json', 'sets.csv', 'tracked_modes.csv']
     """

@@ -46,7 +46,7 @@ class CampaignPanel:
     >>> import tempfile
     >>> from modalnb import fit_campaign
     >>> from modalnb.demo import production_campaign
-    >>> ds = fit_campaign(production_campaign(tempfile.mkdtemp(), n_parts=2, seed=4), workers=0)
+    >>> ds = fit_campaign(production_campaign(tempfile.mkdtemp(), n_parts=2, seed=4, n_samples=1024), workers=0)
     >>> panel = CampaignPanel(ds)
     >>> panel.mode.options[0], len(panel.freq_fig.data)
     (('mode 1', 1), 1)
@@ -184,7 +184,7 @@ def campaign_panel(campaign: xr.Dataset, *, manifest: str | os.PathLike[str] | N
     >>> import tempfile
     >>> from modalnb import fit_campaign
     >>> from modalnb.demo import production_campaign
-    >>> ds = fit_campaign(production_campaign(tempfile.mkdtemp(), n_parts=2, seed=4), workers=0)
+    >>> ds = fit_campaign(production_campaign(tempfile.mkdtemp(), n_parts=2, seed=4, n_samples=1024), workers=0)
     >>> campaign_panel(ds).set_pick.options
     ('P001', 'P002')
     """
