@@ -10,6 +10,7 @@ Headless core (never imports ipywidgets or plotly):
   :func:`modal_conversions`
 * the deliverable: :class:`Recipe`, :func:`load_recipe`, :func:`save_recipe`,
   :func:`run_recipe` (a reproducible replay), :func:`write_modal_table`
+* test campaigns: :func:`fit_campaign` (many record sets, one recipe, modes tracked; dask)
 * the notebook state: :class:`Analysis` (headless; the widgets are views over it)
 * errors: :class:`ModalnbError` and its subclasses :class:`RecordError`,
   :class:`RecordFileNotFoundError`, :class:`EstimationError`, :class:`RecipeError`
@@ -28,6 +29,7 @@ from ._errors import (
     RecordError,
     RecordFileNotFoundError,
 )
+from .campaign import fit_campaign
 from .checks import check_hits, format_hit_report
 from .estimate import cross_checks, mac, mac_matrix, modal_conversions, mpc
 from .export import write_modal_table
@@ -64,6 +66,7 @@ __all__ = (
     # the deliverable
     "run_recipe",
     "write_modal_table",
+    "fit_campaign",
     # recipe
     "Recipe",
     "load_recipe",

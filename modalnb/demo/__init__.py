@@ -94,6 +94,7 @@ from ._model import (
     handbook_cantilever_frequencies,
     sdof_half_sine_response,
 )
+from ._production import bracket_model, lumped_model, lumped_records, production_campaign
 from ._settings import (
     CAMPAIGN_FILE,
     CSV_FILE,
@@ -130,4 +131,8 @@ __all__ = [
     "load_demo_truth",
     "write_demo",
     "main",
+    "production_campaign",
+    "bracket_model",
+    "lumped_model",
+    "lumped_records",
 ]

@@ -17,6 +17,7 @@ One module per panel:
 ``fit_check.py``          4 · Fit check: measured vs model, residual
 ``modal_table.py``        5 · Modal table: table, shapes, MAC, exports
 ``desk.py``               the tabs (:data:`~modalnb.widgets.desk.PANELS`)
+``campaign.py``           the campaign panel (a :func:`modalnb.fit_campaign` result; not a tab)
 ========================  =====================================================
 
 Colours and display decimation come from :mod:`modalnb._display` (shared with the report).
@@ -30,6 +31,7 @@ file with ``esc``), then add the class to ``PANELS`` in ``desk.py`` (its tab, an
 
 from __future__ import annotations
 
+from .campaign import CampaignPanel, campaign_panel
 from .desk import Desk, analysis_desk
 from .fit_check import FitPanel
 from .hits import HitPanel
@@ -37,4 +39,5 @@ from .modal_table import TablePanel
 from .modes import ModesPanel
 from .time_window import WindowPanel
 
-__all__ = ["analysis_desk", "Desk", "HitPanel", "WindowPanel", "ModesPanel", "FitPanel", "TablePanel"]
+__all__ = ["analysis_desk", "Desk", "HitPanel", "WindowPanel", "ModesPanel", "FitPanel", "TablePanel",
+           "campaign_panel", "CampaignPanel"]
