@@ -54,7 +54,6 @@ import json
 import math
 import os
 import shutil
-import tempfile
 import uuid
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
@@ -65,7 +64,7 @@ import numpy as np
 import xarray as xr
 
 from ._errors import ModalnbError
-from ._files import atomic_write_text, staged_files
+from ._files import staged_files
 from .recipe import Recipe, load_recipe
 
 __all__ = [
@@ -310,19 +309,6 @@ def _read_table(path: Path) -> xr.Dataset:
         return ds.load()
 
 
-def _replace_folder(tmp: Path, target: Path) -> None:
-    """Put the finished folder `tmp` at `target`, replacing an older one whole."""
-    old = None
-    if target.exists():
-        old = target.with_name(f".{target.name}.old-{os.getpid()}")
-        if old.exists():
-            shutil.rmtree(old)
-        os.replace(target, old)
-    os.replace(tmp, target)
-    if old is not None:
-        shutil.rmtree(old, ignore_errors=True)
-
-
 def _remove_stale(sets_dir: Path) -> None:
     """Remove the half-built set folders a killed run left (``.<set>.new-*``, ``.<set>.old-*``).
 
@@ -358,18 +344,13 @@ def _fit_set(label: str, records: str, recipe_json: str, set_dir: str | None,
             msg = f"{exc.filename}: {exc.strerror or exc}"
         return {"status": msg}
     if set_dir is not None:
-        target = Path(set_dir)
-        target.parent.mkdir(parents=True, exist_ok=True)
-        tmp = Path(tempfile.mkdtemp(dir=target.parent, prefix=f".{target.name}.new-"))
-        try:
-            write_modal_table(table, tmp, recipe=recipe, checks=checks)
-            marker = {"set": label, "records": records, "records_sha256": digests[0],
-                      "recipe_sha256": digests[1], "status": status}
-            atomic_write_text(tmp / SET_MARKER, json.dumps(marker, indent=2) + "\n")
-            _replace_folder(tmp, target)
-        except BaseException:
-            shutil.rmtree(tmp, ignore_errors=True)
-            raise
+        # the set's folder is replaced whole (built beside it, then exchanged: the marker
+        # arrives with the table or not at all)
+        marker = {"set": label, "records": records, "records_sha256": digests[0],
+                  "recipe_sha256": digests[1], "status": status}
+        text = json.dumps(marker, indent=2) + "\n"
+        write_modal_table(table, Path(set_dir), recipe=recipe, checks=checks,
+                          extra_files={SET_MARKER: lambda p: p.write_text(text, encoding="utf-8")})
     out = _summary(table)
     out["status"] = status
     return out
