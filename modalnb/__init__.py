@@ -12,7 +12,9 @@ Headless core (never imports ipywidgets or plotly):
   :func:`run_recipe` (a reproducible replay), :func:`write_modal_table`
 * the notebook state: :class:`Analysis` (headless; the widgets are views over it)
 * errors: :class:`ModalnbError` and its subclasses :class:`RecordError`,
-  :class:`RecordFileNotFoundError`, :class:`EstimationError`, :class:`RecipeError`
+  :class:`RecordFileNotFoundError`, :class:`EstimationError`, :class:`RecipeError`,
+  :class:`RecipeFileNotFoundError`, :class:`OptionError`; warnings derive from
+  :class:`ModalnbWarning`
 
 Widgets live in :mod:`modalnb.widgets` (imported only when asked for); benchmark and test
 support in :mod:`modalnb.testing`; the demo campaign in :mod:`modalnb.demo`.
@@ -24,7 +26,11 @@ from . import accessor as _accessor  # noqa: F401  (registers ds.modalnb)
 from ._errors import (
     EstimationError,
     ModalnbError,
+    ModalnbWarning,
+    NoAcceptedHitsError,
+    OptionError,
     RecipeError,
+    RecipeFileNotFoundError,
     RecordError,
     RecordFileNotFoundError,
 )
@@ -75,5 +81,9 @@ __all__ = (
     "RecordError",
     "RecordFileNotFoundError",
     "EstimationError",
+    "NoAcceptedHitsError",
     "RecipeError",
+    "RecipeFileNotFoundError",
+    "OptionError",
+    "ModalnbWarning",
 )
