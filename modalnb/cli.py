@@ -136,6 +136,9 @@ def _cmd_check(args: argparse.Namespace) -> int:
 class _Steps:
     """Progress feedback on stderr: each step's name, then its duration."""
 
+    #: True while a step's line waits for its duration (an error starts a new line)
+    line_open = False
+
     def __init__(self, quiet: bool = False):
         self.quiet = quiet
         self._t0: float | None = None
@@ -149,18 +152,25 @@ class _Steps:
         self._t0 = now
         if not self.quiet:
             print(f"modalnb: {msg}...", end="", file=sys.stderr, flush=True)
+            _Steps.line_open = True
 
     def done(self) -> None:
         self("done")
         if not self.quiet:
             print("", file=sys.stderr, flush=True)
+        _Steps.line_open = False
 
 
-def _recipe_from_args(args: argparse.Namespace, records: Any):
-    from .pipeline import recipe_for
+def _base_recipe(args: argparse.Namespace) -> Any:
+    """The ``--recipe`` file read (and the options checked) before any records are read."""
     from .recipe import load_recipe
 
-    base = load_recipe(args.recipe) if getattr(args, "recipe", None) else None
+    _thresholds_from_args(getattr(args, "threshold", None))
+    return load_recipe(args.recipe) if getattr(args, "recipe", None) else None
+
+
+def _recipe_from_args(args: argparse.Namespace, records: Any, base: Any = None):
+    from .pipeline import recipe_for
     if base is not None and base.records_checksum:
         from .records import records_checksum
 
@@ -257,12 +267,13 @@ def _cmd_fit(args: argparse.Namespace) -> int:
 
     out = Path(args.out)
     _check_out(out)
+    base = _base_recipe(args)
     steps = _Steps(args.quiet)
     steps("reading records")
     ds = _open(args)
     args.source = ", ".join(args.records)
     with _named(args.source):
-        recipe = _recipe_from_args(args, ds)
+        recipe = _recipe_from_args(args, ds, base)
     result, _ = _fit_and_write(ds, recipe, out, steps, title=f"modalnb: {args.source}")
     print(format_modal_table(result))
     print(f"wrote modes.csv, shapes.csv, hits.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
@@ -276,12 +287,13 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     from .export import CAUTION, format_modal_table
 
     _check_out(Path(args.out))
+    base = _base_recipe(args)
     steps = _Steps(args.quiet)
     steps("loading the bundled demo campaign")
     ds = demo.load_demo()
     truth = demo.load_demo_truth()
     args.source = "bundled demo campaign"
-    recipe = _recipe_from_args(args, ds)
+    recipe = _recipe_from_args(args, ds, base)
     out = Path(args.out)
     result, checks = _fit_and_write(ds, recipe, out, steps, title="modalnb demo campaign")
     print(f"modalnb demo: {ds.attrs.get('title', 'demo campaign')}")
@@ -407,6 +419,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
     def one_line(message, category, filename, lineno, file=None, line=None):  # noqa: ANN001
         if isinstance(category, type) and issubclass(category, ModalnbWarning):
+            _end_progress_line()
             print(f"modalnb: warning: {' '.join(str(message).split())}", file=sys.stderr)
         else:
             shown(message, category, filename, lineno, file, line)
@@ -421,13 +434,21 @@ def main(argv: Sequence[str] | None = None) -> int:
         msg = str(exc)
         if isinstance(exc, OSError) and not isinstance(exc, ModalnbError) and exc.filename:
             msg = f"{exc.filename}: {exc.strerror or exc}"
+        _end_progress_line()
         print(f"modalnb: error: {' '.join(msg.split())}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
+        _end_progress_line()
         print("modalnb: interrupted", file=sys.stderr)
         return 130
     finally:
         warnings.showwarning = shown
+
+
+def _end_progress_line() -> None:
+    if _Steps.line_open:
+        print("", file=sys.stderr, flush=True)
+        _Steps.line_open = False
 
 
 if __name__ == "__main__":  # pragma: no cover
