@@ -280,7 +280,10 @@ class Analysis:
         recipe_path : path, optional
             Recipe file to restore and autosave to. Default for a file:
             ``<stem>.recipe.json`` beside it (:func:`default_recipe_path`); for a Dataset
-            there is no default (no autosave).
+            there is no default (no autosave). When it cannot be read or written (no
+            permission, a folder in its place, not a usable recipe), the analysis opens
+            with automatic choices, leaves the file as it is, warns in one line and does not
+            autosave (:meth:`autosave_to` names another file).
         fit : bool
             Fit at once (default True).
         **open_options
@@ -311,9 +314,8 @@ class Analysis:
                 except RecipeFileNotFoundError:
                     pass  # removed meanwhile: start afresh
                 except RecipeError as exc:
-                    if not isinstance(exc.__context__, OSError) and "cannot be read" not in str(exc):
-                        raise  # a recipe that is there but wrong: refuse, never overwrite it
-                    problem = "it cannot be read"
+                    # unreadable, or not a usable recipe: open anyway, never overwrite it
+                    problem = str(exc).removeprefix(f"{p}: ").rstrip(".")
             if problem:
                 a = cls(records, recipe, source=source, fit=False)
                 a._no_autosave(p, problem)

@@ -219,3 +219,13 @@ def test_api_every_hit_rejected_names_the_check(records):
         with pytest.raises(modalnb.NoAcceptedHitsError, match=r"clipping: 3 hits") as info:
             fit_modes(records, check_thresholds={"clip_level": 0.01})
     assert info.value.rejected_by == {"clipping": 3} and "check_thresholds" in str(info.value)
+
+
+def test_open_with_a_broken_recipe_opens_and_leaves_it_alone(tmp_path, records_file):
+    path = tmp_path / "tap.recipe.json"
+    path.write_text('{"format": "modalnb-recipe", "version": 1, "window": [0.01, 1e400]}')
+    with pytest.warns(RecipeAutosaveWarning, match="finite") as caught:
+        a = Analysis.open(records_file, fit=False)
+    assert "\n" not in str(caught[0].message) and a.recipe_path is None
+    assert a.set_n_modes(1)
+    assert "1e400" in path.read_text()  # the user's file is never overwritten
