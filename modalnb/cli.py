@@ -47,10 +47,8 @@ def _check_out(out: Path) -> None:
         ancestor = ancestor.parent
     if not ancestor.is_dir():
         raise _BadOption(f"--out {out}: {ancestor} is a file, so the folder cannot be made there.")
-    # the folder, and its parent (a new set is built beside it), must be writable
-    for folder in {ancestor, out.parent if out.parent.exists() else ancestor}:
-        if not os.access(folder, os.W_OK | os.X_OK):
-            raise _BadOption(f"--out {out}: cannot write in {folder} (no permission).")
+    if not os.access(ancestor, os.W_OK | os.X_OK):
+        raise _BadOption(f"--out {out}: cannot write in {ancestor} (no permission).")
 
 
 def _thresholds_from_args(values: Sequence[str] | None) -> dict[str, float | int]:
@@ -171,15 +169,7 @@ def _base_recipe(args: argparse.Namespace) -> Any:
 
 def _recipe_from_args(args: argparse.Namespace, records: Any, base: Any = None):
     from .pipeline import recipe_for
-    if base is not None and base.records_checksum:
-        from .records import records_checksum
 
-        if base.records_checksum != records_checksum(records):
-            print(
-                f"modalnb: warning: {args.recipe} was made on other records (checksum differs); "
-                "the table may differ from the original",
-                file=sys.stderr,
-            )
     changes: dict[str, Any] = {}
     if getattr(args, "band", None):
         changes["band"] = tuple(args.band)
@@ -204,7 +194,14 @@ def _recipe_from_args(args: argparse.Namespace, records: Any, base: Any = None):
                                        **_thresholds_from_args(args.threshold)}
     if getattr(args, "source", None):
         changes["source"] = args.source
-    return recipe_for(records, base, **changes)
+    recipe = recipe_for(records, base, **changes)
+    if recipe.replayed_on_checksum:  # the recipe keeps its own checksum (provenance)
+        print(
+            f"modalnb: warning: {args.recipe} was made on other records (checksum differs); "
+            "the table may differ from the original",
+            file=sys.stderr,
+        )
+    return recipe
 
 
 def _no_hits_message(exc: Any, source: str) -> str:

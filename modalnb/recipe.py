@@ -58,6 +58,8 @@ def _pair(name: str, value: Any) -> tuple[float, float] | None:
     if value is None:
         return None
     try:
+        if isinstance(value, (str, bytes)):  # "12" is not the pair (1, 2)
+            raise TypeError
         a, b = (float(v) for v in value)
     except (TypeError, ValueError):
         raise RecipeError(f"recipe `{name}` must be two numbers [low, high] or null, was {value!r}.") from None

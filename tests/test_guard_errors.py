@@ -229,3 +229,12 @@ def test_open_with_a_broken_recipe_opens_and_leaves_it_alone(tmp_path, records_f
     assert "\n" not in str(caught[0].message) and a.recipe_path is None
     assert a.set_n_modes(1)
     assert "1e400" in path.read_text()  # the user's file is never overwritten
+
+
+@pytest.mark.parametrize("body", ['"window": "12"', '"band": "19"', '"add_modes": "42"',
+                                  '"hit_overrides": [1, 2]', '"notes": 5', '"source": ["a"]'])
+def test_recipe_values_of_the_wrong_shape_are_refused_not_reinterpreted(tmp_path, body):
+    # a text of digits is not a list of numbers (it used to be read digit by digit)
+    with pytest.raises(RecipeError) as info:
+        load_recipe(_recipe_file(tmp_path, body))
+    assert "\n" not in str(info.value)
