@@ -344,7 +344,7 @@ class ModeFit:
         if base is not None:  # provenance of a replay: keep the recipe's own checksum
             checksum = str(self._engine.result_.attrs["input_checksum"])
             note = replay_note(base, checksum)
-            if note:
+            if note and not getattr(self, "_replay_warned", False):
                 import warnings
 
                 warnings.warn(note, OtherRecordsWarning, stacklevel=3)

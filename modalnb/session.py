@@ -536,16 +536,17 @@ class Analysis:
         est = self._estimator
         preview = (not full and recipe.window is not None and est is not None
                    and self._estimator_key == key)
-        with warnings.catch_warnings():
-            # said once, when the analysis was made (see __init__)
-            warnings.simplefilter("ignore", OtherRecordsWarning)
-            if preview:
-                assert est is not None
-                result = est.refit(window=recipe.window)
-            else:
-                est = ModeFit.from_recipe(recipe).fit(self.records)
-                self._estimator, self._estimator_key = est, key
-                result = est.result_
+        # no warnings.catch_warnings here: it resets the kernel's process-wide warning
+        # state, which stopped the widgets' figures from drawing in JupyterLab
+        if preview:
+            assert est is not None
+            result = est.refit(window=recipe.window)
+        else:
+            est = ModeFit.from_recipe(recipe)
+            est._replay_warned = True  # said once, when the analysis was made (__init__)
+            est.fit(self.records)
+            self._estimator, self._estimator_key = est, key
+            result = est.result_
         return result, est.hit_checks_, preview
 
     # --- files ---------------------------------------------------------------------
