@@ -13,7 +13,9 @@ Headless core (never imports ipywidgets or plotly):
 * test campaigns: :func:`fit_campaign` (many record sets, one recipe, modes tracked; dask)
 * the notebook state: :class:`Analysis` (headless; the widgets are views over it)
 * errors: :class:`ModalnbError` and its subclasses :class:`RecordError`,
-  :class:`RecordFileNotFoundError`, :class:`EstimationError`, :class:`RecipeError`
+  :class:`RecordFileNotFoundError`, :class:`EstimationError`, :class:`RecipeError`,
+  :class:`RecipeFileNotFoundError`, :class:`OptionError`; warnings derive from
+  :class:`ModalnbWarning`
 
 Widgets live in :mod:`modalnb.widgets` (imported only when asked for); benchmark and test
 support in :mod:`modalnb.testing`; the demo campaign in :mod:`modalnb.demo`.
@@ -25,7 +27,11 @@ from . import accessor as _accessor  # noqa: F401  (registers ds.modalnb)
 from ._errors import (
     EstimationError,
     ModalnbError,
+    ModalnbWarning,
+    NoAcceptedHitsError,
+    OptionError,
     RecipeError,
+    RecipeFileNotFoundError,
     RecordError,
     RecordFileNotFoundError,
 )
@@ -78,5 +84,9 @@ __all__ = (
     "RecordError",
     "RecordFileNotFoundError",
     "EstimationError",
+    "NoAcceptedHitsError",
     "RecipeError",
+    "RecipeFileNotFoundError",
+    "OptionError",
+    "ModalnbWarning",
 )

@@ -66,6 +66,8 @@ def frequency_list(name: str, value: object, error: type[ModalnbError] = Modalnb
     """
     if value is None:
         return []
+    if isinstance(value, (str, bytes)):  # not a list of digits
+        raise error(f"{name} must be a list of frequencies in Hz, was {value!r}.")
     try:
         out = sorted(float(v) for v in (value if isinstance(value, Iterable) else [value]))
     except (TypeError, ValueError):
@@ -116,6 +118,8 @@ def check_band(
         return None
     where = f"{source}: " if source else ""
     try:
+        if isinstance(band, (str, bytes)):  # "12" is not the pair (1, 2)
+            raise TypeError
         lo, hi = (float(b) for b in band)  # type: ignore[union-attr]
     except (TypeError, ValueError):
         raise error(

@@ -11,14 +11,61 @@ lmfit, plotly or the benchmark), so a command's cold start pays only for its own
 from __future__ import annotations
 
 import argparse
+import os
 import sys
-from collections.abc import Sequence
+import warnings
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
 __all__ = ["main"]
 
 EXIT_BAD_INPUT = 2
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse with a one-line error (no usage block), exit code 2."""
+
+    def error(self, message: str) -> None:  # type: ignore[override]
+        print(f"{self.prog}: error: {' '.join(message.split())} (see {self.prog} --help)",
+              file=sys.stderr)
+        sys.exit(EXIT_BAD_INPUT)
+
+
+class _BadOption(Exception):
+    """A command-line value that argparse cannot judge (printed as one line, exit 2)."""
+
+
+def _check_out(out: Path) -> None:
+    """Refuse an output folder that cannot be written, before any work."""
+    if out.exists() and not out.is_dir():
+        raise _BadOption(f"--out {out}: is an existing file, not a folder. Hint: give a folder "
+                         "name (created if missing).")
+    ancestor = out.parent if not out.exists() else out
+    while not ancestor.exists() and ancestor != ancestor.parent:
+        ancestor = ancestor.parent
+    if not ancestor.is_dir():
+        raise _BadOption(f"--out {out}: {ancestor} is a file, so the folder cannot be made there.")
+    if not os.access(ancestor, os.W_OK | os.X_OK):
+        raise _BadOption(f"--out {out}: cannot write in {ancestor} (no permission).")
+
+
+def _thresholds_from_args(values: Sequence[str] | None) -> dict[str, float | int]:
+    out: dict[str, float | int] = {}
+    for item in values or ():
+        name, sep, text = item.partition("=")
+        if not sep or not name.strip():
+            raise _BadOption(f"--threshold {item!r}: expected NAME=VALUE, e.g. clip_level=0.99.")
+        try:
+            value: float | int = int(text)
+        except ValueError:
+            try:
+                value = float(text)
+            except ValueError:
+                raise _BadOption(f"--threshold {item!r}: {text!r} is not a number.") from None
+        out[name.strip()] = value
+    return out
 
 
 def _reader_options(args: argparse.Namespace) -> dict[str, Any]:
@@ -56,6 +103,13 @@ def _add_fit_args(p: argparse.ArgumentParser) -> None:
                    help="a mode the automatic search missed, near HZ (repeatable)")
     g.add_argument("--drop-mode", dest="drop_mode", type=float, action="append", metavar="HZ",
                    help="leave the fitted mode nearest HZ out of the table (repeatable)")
+    g.add_argument("--accept-hit", dest="accept_hit", type=int, action="append", metavar="HIT",
+                   help="use this hit whatever the hit checks say (repeatable)")
+    g.add_argument("--reject-hit", dest="reject_hit", type=int, action="append", metavar="HIT",
+                   help="leave this hit out (repeatable)")
+    g.add_argument("--threshold", action="append", metavar="NAME=VALUE",
+                   help="a hit-check threshold, e.g. clip_level=0.99 (repeatable; names in "
+                   "`modalnb check` docs: help(modalnb.check_hits))")
     g.add_argument("--recipe", metavar="FILE", help="replay this recipe (JSON)")
     p.add_argument("--quiet", action="store_true", help="no progress messages")
 
@@ -80,6 +134,9 @@ def _cmd_check(args: argparse.Namespace) -> int:
 class _Steps:
     """Progress feedback on stderr: each step's name, then its duration."""
 
+    #: True while a step's line waits for its duration (an error starts a new line)
+    line_open = False
+
     def __init__(self, quiet: bool = False):
         self.quiet = quiet
         self._t0: float | None = None
@@ -93,27 +150,26 @@ class _Steps:
         self._t0 = now
         if not self.quiet:
             print(f"modalnb: {msg}...", end="", file=sys.stderr, flush=True)
+            _Steps.line_open = True
 
     def done(self) -> None:
         self("done")
         if not self.quiet:
             print("", file=sys.stderr, flush=True)
+        _Steps.line_open = False
 
 
-def _recipe_from_args(args: argparse.Namespace, records: Any):
-    from .pipeline import recipe_for
+def _base_recipe(args: argparse.Namespace) -> Any:
+    """The ``--recipe`` file read (and the options checked) before any records are read."""
     from .recipe import load_recipe
 
-    base = load_recipe(args.recipe) if getattr(args, "recipe", None) else None
-    if base is not None and base.records_checksum:
-        from .records import records_checksum
+    _thresholds_from_args(getattr(args, "threshold", None))
+    return load_recipe(args.recipe) if getattr(args, "recipe", None) else None
 
-        if base.records_checksum != records_checksum(records):
-            print(
-                f"modalnb: warning: {args.recipe} was made on other records (checksum differs); "
-                "the table may differ from the original",
-                file=sys.stderr,
-            )
+
+def _recipe_from_args(args: argparse.Namespace, records: Any, base: Any = None):
+    from .pipeline import recipe_for
+
     changes: dict[str, Any] = {}
     if getattr(args, "band", None):
         changes["band"] = tuple(args.band)
@@ -125,9 +181,62 @@ def _recipe_from_args(args: argparse.Namespace, records: Any):
         changes["add_modes"] = sorted({*(base.add_modes if base else []), *args.add_mode})
     if getattr(args, "drop_mode", None):
         changes["drop_modes"] = sorted({*(base.drop_modes if base else []), *args.drop_mode})
+    if getattr(args, "accept_hit", None) or getattr(args, "reject_hit", None):
+        both = set(args.accept_hit or ()) & set(args.reject_hit or ())
+        if both:
+            raise _BadOption(f"hit {min(both)} is given to both --accept-hit and --reject-hit.")
+        overrides = dict(base.hit_overrides if base else {})
+        overrides.update({h: True for h in args.accept_hit or ()})
+        overrides.update({h: False for h in args.reject_hit or ()})
+        changes["hit_overrides"] = overrides
+    if getattr(args, "threshold", None):
+        changes["check_thresholds"] = {**(base.check_thresholds if base else {}),
+                                       **_thresholds_from_args(args.threshold)}
     if getattr(args, "source", None):
         changes["source"] = args.source
-    return recipe_for(records, base, **changes)
+    recipe = recipe_for(records, base, **changes)
+    if recipe.replayed_on_checksum:  # the recipe keeps its own checksum (provenance)
+        print(
+            f"modalnb: warning: {args.recipe} was made on other records (checksum differs); "
+            "the table may differ from the original",
+            file=sys.stderr,
+        )
+    return recipe
+
+
+def _no_hits_message(exc: Any, source: str) -> str:
+    """The every-hit-rejected error in command-line terms (options, not API arguments)."""
+    from .checks import CHECKS
+
+    what = ", ".join(f"{n}: {k} hit{'s' if k != 1 else ''}" for n, k in exc.rejected_by.items())
+    ways = ["accept hits with --accept-hit HIT (repeatable)"]
+    for check in sorted(CHECKS, key=lambda c: -exc.rejected_by.get(c.name, 0)):
+        if check.name in exc.rejected_by and check.thresholds:
+            t = check.thresholds[0]
+            ways.append(f"loosen the {check.name} check with --threshold {t.name}=VALUE "
+                        f"(now {t.default!r})")
+            break
+    if "the user's decision" in exc.rejected_by:
+        ways.append("drop --reject-hit (or the recipe's hit_overrides)")
+    return (f"{source}: all {exc.n_hits} hits are rejected ({what}); nothing to fit. Hint: "
+            f"{'; or '.join(ways)}; `modalnb check {source}` shows each hit's reason.")
+
+
+@contextmanager
+def _named(source: str) -> Iterator[None]:
+    """Errors of the analysis name the records they came from."""
+    from ._errors import EstimationError, ModalnbError, NoAcceptedHitsError, RecipeError
+
+    try:
+        yield
+    except NoAcceptedHitsError as exc:
+        raise EstimationError(_no_hits_message(exc, source)) from exc
+    except ModalnbError as exc:
+        if source in str(exc) or isinstance(exc, RecipeError):  # a recipe error names its file
+            raise
+        # same class when it takes just a message (all but NoAcceptedHitsError)
+        cls = type(exc) if type(exc).__init__ is ModalnbError.__init__ else ModalnbError
+        raise cls(f"{source}: {exc}") from exc
 
 
 def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: str) -> Any:
@@ -136,7 +245,12 @@ def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: s
     from .pipeline import run_recipe
 
     check_output_folder(out)  # before the work: a folder that cannot be replaced is one line
-    result, checks = run_recipe(records, recipe, progress=steps)
+    with _named(title.removeprefix("modalnb: ")), warnings.catch_warnings():
+        # the CLI said it already, naming the recipe file (_recipe_from_args)
+        from ._errors import OtherRecordsWarning
+
+        warnings.simplefilter("ignore", OtherRecordsWarning)
+        result, checks = run_recipe(records, recipe, progress=steps)
     from .export import write_report
 
     def report(path: Path) -> None:
@@ -153,18 +267,16 @@ def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: s
 def _cmd_fit(args: argparse.Namespace) -> int:
     from .export import CAUTION, format_modal_table
 
+    out = Path(args.out)
+    _check_out(out)
+    base = _base_recipe(args)
     steps = _Steps(args.quiet)
     steps("reading records")
     ds = _open(args)
     args.source = ", ".join(args.records)
-    recipe = _recipe_from_args(args, ds)
-    out = Path(args.out)
-    from ._errors import EstimationError
-
-    try:
-        result, _ = _fit_and_write(ds, recipe, out, steps, title=f"modalnb: {args.source}")
-    except EstimationError as exc:  # name the records file
-        raise EstimationError(f"{args.source}: {exc}") from None
+    with _named(args.source):
+        recipe = _recipe_from_args(args, ds, base)
+    result, _ = _fit_and_write(ds, recipe, out, steps, title=f"modalnb: {args.source}")
     print(format_modal_table(result))
     print(f"wrote modes.csv, shapes.csv, hits.csv, poles_set_aside.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
     print(CAUTION)
@@ -176,12 +288,14 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     from .checks import format_hit_report
     from .export import CAUTION, format_modal_table
 
+    _check_out(Path(args.out))
+    base = _base_recipe(args)
     steps = _Steps(args.quiet)
     steps("loading the bundled demo campaign")
     ds = demo.load_demo()
     truth = demo.load_demo_truth()
     args.source = "bundled demo campaign"
-    recipe = _recipe_from_args(args, ds)
+    recipe = _recipe_from_args(args, ds, base)
     out = Path(args.out)
     result, checks = _fit_and_write(ds, recipe, out, steps, title="modalnb demo campaign")
     print(f"modalnb demo: {ds.attrs.get('title', 'demo campaign')}")
@@ -355,7 +469,7 @@ def build_parser() -> argparse.ArgumentParser:
     """The ``modalnb`` argument parser."""
     from . import __version__
 
-    p = argparse.ArgumentParser(
+    p = _Parser(
         prog="modalnb",
         description="Modal parameters from impact-hammer ring-down records. "
         "Results are estimates for engineering judgement, not a certification of safety.",
@@ -419,26 +533,46 @@ def main(argv: Sequence[str] | None = None) -> int:
     >>> main(["--version"])  # doctest: +SKIP
     modalnb 0.1.0
     """
-    from ._errors import ModalnbError
+    from ._errors import ModalnbError, ModalnbWarning
 
     parser = build_parser()
     args = parser.parse_args(argv)
     restore = _term_as_interrupt()
+    shown = warnings.showwarning
+
+    def one_line(message, category, filename, lineno, file=None, line=None):  # noqa: ANN001
+        if isinstance(category, type) and issubclass(category, ModalnbWarning):
+            _end_progress_line()
+            print(f"modalnb: warning: {' '.join(str(message).split())}", file=sys.stderr)
+        else:
+            shown(message, category, filename, lineno, file, line)
+
+    warnings.showwarning = one_line
     try:
         return int(args.func(args) or 0)
-    except (ModalnbError, FileNotFoundError, IsADirectoryError, PermissionError) as exc:
+    except (ModalnbError, FileNotFoundError, IsADirectoryError, PermissionError,
+            _BadOption) as exc:
         if args.debug:
             raise
         msg = str(exc)
         if isinstance(exc, OSError) and not isinstance(exc, ModalnbError) and exc.filename:
             msg = f"{exc.filename}: {exc.strerror or exc}"
+        _end_progress_line()
         print(f"modalnb: error: {' '.join(msg.split())}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
+        _end_progress_line()
         print("modalnb: interrupted", file=sys.stderr)
         return 130
     finally:
         restore()
+        warnings.showwarning = shown
+
+
+def _end_progress_line() -> None:
+    if _Steps.line_open:
+        print("", file=sys.stderr, flush=True)
+        _Steps.line_open = False
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -28,14 +28,14 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
-from ._errors import EstimationError
+from ._errors import EstimationError, NoAcceptedHitsError, OtherRecordsWarning
 from .checks import check_hits
 from .estimate import SharedPoleFit, with_cross_checks
 from .estimate._fit import accept_decisions
-from .recipe import Recipe, load_recipe, package_version
+from .recipe import Recipe, load_recipe, package_version, replay_note
 from .records import validate_records
 
-__all__ = ["ModeFit", "fit_modes", "finish_table", "hit_checks", "engine_records"]
+__all__ = ["ModeFit", "fit_modes", "finish_table", "hit_checks", "engine_records", "require_accepted_hits"]
 
 
 def _overrides(records: xr.Dataset, accept: Any) -> dict[int, bool]:
@@ -78,6 +78,46 @@ def hit_checks(
     """
     return check_hits(records, overrides=dict(overrides) if overrides else None,
                       **dict(check_thresholds or {}))
+
+
+def require_accepted_hits(checks: xr.Dataset) -> None:
+    """Raise :class:`~modalnb.NoAcceptedHitsError` when the hit checks accept no hit.
+
+    The message names what rejected the hits (each check, or the caller's decisions) and
+    the API's ways out; ``rejected_by`` holds the counts for a caller (the CLI) that words
+    its own hint.
+
+    Examples
+    --------
+    >>> from modalnb.demo import load_demo
+    >>> require_accepted_hits(hit_checks(load_demo(), {h: False for h in range(1, 9)}))
+    Traceback (most recent call last):
+    ...
+    modalnb._errors.NoAcceptedHitsError: all 8 hits are rejected (the user's decision: 8 hits)...
+    """
+    from .checks import CHECK_NAMES
+
+    accepted = np.asarray(checks["accepted"].values, bool)
+    if accepted.any():
+        return
+    by: dict[str, int] = {}
+    for reason in (str(r) for r in checks["reason"].values):
+        names = [n for n in CHECK_NAMES if any(part.strip().startswith(n)
+                                               for part in reason.split(";"))]
+        if reason.startswith("rejected by user"):
+            names = ["the user's decision"]
+        for n in names or ["unknown"]:
+            by[n] = by.get(n, 0) + 1
+    what = ", ".join(f"{n}: {k} hit{'s' if k != 1 else ''}" for n, k in by.items())
+    checks_named = [n for n in by if n in CHECK_NAMES]
+    hint = "accept hits with `accept={hit: True}`"
+    if checks_named:
+        hint += (f", loosen the check's threshold (`check_thresholds`), or leave {checks_named[0]!r} "
+                 "out of the rejecting checks")
+    raise NoAcceptedHitsError(
+        f"all {accepted.size} hits are rejected ({what}); nothing to fit. Hint: {hint}.",
+        rejected_by=by, n_hits=accepted.size,
+    )
 
 
 def engine_records(records: xr.Dataset, correct_exponential_window: bool = True) -> xr.Dataset:
@@ -128,22 +168,6 @@ def finish_table(
     table.attrs["recipe"] = recipe.to_json()
     table.attrs["modalnb_version"] = package_version()
     return table
-
-
-def _check_some_accepted(checks: xr.Dataset) -> None:
-    """A one-line EstimationError saying why, when the hit checks rejected every hit."""
-    acc = np.asarray(checks["accepted"].values, bool)
-    if acc.any():
-        return
-    reasons: dict[str, int] = {}
-    for r in checks["reason"].values.tolist():
-        reasons[str(r) or "rejected"] = reasons.get(str(r) or "rejected", 0) + 1
-    said = "; ".join(f"{r} ({n} of {acc.size})" if len(reasons) > 1 else r
-                     for r, n in reasons.items())
-    raise EstimationError(
-        f"all {acc.size} hits are rejected: {said}; nothing to fit. Hint: fix the cause and "
-        "record new hits, or accept hits by hand (the recipe's hit_overrides)."
-    )
 
 
 class ModeFit:
@@ -307,16 +331,27 @@ class ModeFit:
                      overrides: dict[int, bool]) -> ModeFit:
         """The engine and the finisher, given the hit checks of `records` (run_recipe's
         steps, so it can report them one by one)."""
-        _check_some_accepted(checks)
         self._records = records
         self._overrides = overrides
         self._fit_records = engine_records(records, self.correct_exponential_window)
         self.hit_checks_ = checks
+        require_accepted_hits(checks)
         self._engine = SharedPoleFit(
             band=self.band, window=self.window, n_modes=self.n_modes,
             accept=self._decisions(checks), max_order=self.max_order, scatter=self.scatter,
             blas_threads=self.blas_threads, add_modes=self.add_modes, drop_modes=self.drop_modes,
         ).fit(self._fit_records)
+        base = getattr(self, "_recipe_base", None)
+        if base is not None:  # provenance of a replay: keep the recipe's own checksum
+            checksum = str(self._engine.result_.attrs["input_checksum"])
+            note = replay_note(base, checksum)
+            if note and not getattr(self, "_replay_warned", False):
+                import warnings
+
+                warnings.warn(note, OtherRecordsWarning, stacklevel=3)
+            replayed_on = checksum if note else None
+            if base.replayed_on_checksum != replayed_on:
+                self._recipe_base = replace(base, replayed_on_checksum=replayed_on)
         self._finish(self.window)
         return self
 

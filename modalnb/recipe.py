@@ -10,21 +10,25 @@ corrected, and the checksum of the records it was made on.
 from __future__ import annotations
 
 import functools
+import hashlib
 import json
+import math
 import os
+from collections.abc import Mapping
 from dataclasses import asdict, dataclass, field, fields, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from ._errors import RecipeError
+from ._errors import ModalnbError, RecipeError, RecipeFileNotFoundError
 from ._files import atomic_write_text
-from ._utils import check_band, frequency_list
+from ._utils import check_band, did_you_mean, frequency_list
 
 if TYPE_CHECKING:
     import xarray as xr
 
-__all__ = ["Recipe", "RecipeError", "load_recipe", "save_recipe", "recipe_for", "package_version",
-           "RECIPE_FORMAT", "RECIPE_VERSION"]
+__all__ = ["Recipe", "RecipeError", "RecipeFileNotFoundError", "load_recipe", "save_recipe",
+           "recipe_for", "package_version", "merge_recipes", "read_recipe_file", "content_hash",
+           "CHOICE_FIELDS", "RECIPE_FORMAT", "RECIPE_VERSION"]
 
 #: Value of the ``format`` key that marks a modalnb recipe.
 RECIPE_FORMAT = "modalnb-recipe"
@@ -54,12 +58,54 @@ def _pair(name: str, value: Any) -> tuple[float, float] | None:
     if value is None:
         return None
     try:
+        if isinstance(value, (str, bytes)):  # "12" is not the pair (1, 2)
+            raise TypeError
         a, b = (float(v) for v in value)
     except (TypeError, ValueError):
         raise RecipeError(f"recipe `{name}` must be two numbers [low, high] or null, was {value!r}.") from None
+    if not (math.isfinite(a) and math.isfinite(b)):
+        raise RecipeError(f"recipe `{name}` must be two finite numbers, was {value!r}.")
     if not a < b:
         raise RecipeError(f"recipe `{name}` must have low < high, was {value!r}.")
     return (a, b)
+
+
+def _thresholds(value: Any) -> dict[str, Any]:
+    """The recipe's check thresholds, each checked by the hit checks' own rule."""
+    if not isinstance(value, Mapping):
+        raise RecipeError("recipe `check_thresholds` must be an object of threshold names and "
+                          f"numbers, was {value!r}.")
+    from .checks._compose import THRESHOLDS, _check_reject, check_threshold_value
+
+    known = ["reject"] + [t.name for t in THRESHOLDS]
+    out: dict[str, Any] = {}
+    for name, v in value.items():
+        if not isinstance(name, str) or name not in known:
+            raise RecipeError(
+                f"recipe `check_thresholds` has an unknown threshold {name!r}."
+                f"{did_you_mean(str(name), known)} Known: {', '.join(known)}."
+            )
+        try:
+            if name == "reject":  # the checks that reject (the others only warn)
+                if not isinstance(v, list):
+                    raise RecipeError(f"`reject` must be a list of check names, was {v!r}.")
+                out[name] = list(_check_reject(v))
+                continue
+            if isinstance(v, float) and not math.isfinite(v):
+                raise RecipeError(f"`{name}` must be a finite number, was {v!r}.")
+            out[name] = check_threshold_value(name, v)
+        except ModalnbError as exc:
+            raise RecipeError(f"recipe `check_thresholds`: {exc}") from None
+    return out
+
+
+def _optional_text(name: str, value: Any, *, allow_none: bool = True) -> Any:
+    if value is None and allow_none:
+        return None
+    if not isinstance(value, str):
+        kind = "text or null" if allow_none else "text"
+        raise RecipeError(f"recipe `{name}` must be {kind}, was {value!r}.")
+    return value
 
 
 @dataclass
@@ -89,6 +135,10 @@ class Recipe:
         records say one was applied).
     records_checksum : str or None
         Checksum of the records the recipe was made on (:func:`modalnb.records_checksum`).
+        A replay on other records keeps it.
+    replayed_on_checksum : str or None
+        Checksum of the records this recipe was last replayed on, when they differ from
+        ``records_checksum`` (None otherwise): the table may differ from the original.
     source : str or None
         Where the records came from (informative).
     notes : str
@@ -112,6 +162,7 @@ class Recipe:
     check_thresholds: dict[str, Any] = field(default_factory=dict)
     correct_exponential_window: bool = True
     records_checksum: str | None = None
+    replayed_on_checksum: str | None = None
     source: str | None = None
     notes: str = ""
     created_with: str = ""
@@ -124,6 +175,10 @@ class Recipe:
                 raise RecipeError(f"recipe `n_modes` must be a positive integer or null, was {self.n_modes!r}.")
         self.add_modes = frequency_list("recipe `add_modes`", self.add_modes, RecipeError)
         self.drop_modes = frequency_list("recipe `drop_modes`", self.drop_modes, RecipeError)
+        if not isinstance(self.hit_overrides, Mapping):
+            raise RecipeError(
+                f"recipe `hit_overrides` must be an object {{hit label: true/false}}, was {self.hit_overrides!r}."
+            )
         overrides: dict[int, bool] = {}
         for k, v in dict(self.hit_overrides).items():
             try:
@@ -134,9 +189,13 @@ class Recipe:
                 ) from None
             overrides[label] = _as_bool(v, f"hit_overrides[{k}]")
         self.hit_overrides = overrides
-        if not isinstance(self.check_thresholds, dict):
-            raise RecipeError("recipe `check_thresholds` must be an object of keyword arguments.")
+        self.check_thresholds = _thresholds(self.check_thresholds)
         self.correct_exponential_window = _as_bool(self.correct_exponential_window, "correct_exponential_window")
+        self.records_checksum = _optional_text("records_checksum", self.records_checksum)
+        self.replayed_on_checksum = _optional_text("replayed_on_checksum", self.replayed_on_checksum)
+        self.source = _optional_text("source", self.source)
+        self.notes = _optional_text("notes", self.notes, allow_none=False)
+        self.created_with = _optional_text("created_with", self.created_with, allow_none=False)
         if not self.created_with:
             self.created_with = f"modalnb {package_version()}"
 
@@ -150,8 +209,15 @@ class Recipe:
         return {"format": RECIPE_FORMAT, "version": RECIPE_VERSION, **d}
 
     def to_json(self) -> str:
-        """Indented JSON text (stable key order, so diffs between recipes are readable)."""
-        return json.dumps(self.to_dict(), indent=2) + "\n"
+        """Indented JSON text (stable key order, so diffs between recipes are readable).
+
+        Strict JSON: a non-finite number is a :class:`RecipeError`, never ``Infinity``.
+        """
+        try:
+            return json.dumps(self.to_dict(), indent=2, allow_nan=False) + "\n"
+        except ValueError:
+            raise RecipeError("recipe holds a non-finite number (NaN or infinity); a recipe "
+                              "is strict JSON. Hint: use finite numbers.") from None
 
     @classmethod
     def from_dict(cls, data: Any, *, source: str | None = None) -> Recipe:
@@ -175,8 +241,6 @@ class Recipe:
         known = {f.name for f in fields(cls)}
         unknown = sorted(set(body) - known)
         if unknown:
-            from ._utils import did_you_mean
-
             raise RecipeError(
                 f"{where}unknown recipe key {unknown[0]!r}.{did_you_mean(unknown[0], known)} "
                 "Refusing to guess what it means."
@@ -185,15 +249,21 @@ class Recipe:
             return cls(**body)
         except RecipeError as exc:
             raise RecipeError(f"{where}{exc}") from None
+        except (TypeError, ValueError, OverflowError) as exc:  # a value no field check foresaw
+            raise RecipeError(f"{where}a recipe value cannot be read: {exc}.") from None
 
     @classmethod
     def from_json(cls, text: str, *, source: str | None = None) -> Recipe:
         """Parse JSON text (see :meth:`from_dict`)."""
+        where = f"{source}: " if source else ""
         try:
-            data = json.loads(text)
+            data = json.loads(text, parse_constant=_refuse_constant)
         except json.JSONDecodeError as exc:
-            where = f"{source}: " if source else ""
             raise RecipeError(f"{where}not valid JSON ({exc.msg} at line {exc.lineno}, column {exc.colno}).") from None
+        except RecursionError:
+            raise RecipeError(f"{where}not a recipe (JSON nested too deeply).") from None
+        except RecipeError as exc:
+            raise RecipeError(f"{where}{exc}") from None
         return cls.from_dict(data, source=source)
 
     # --- use -----------------------------------------------------------------------
@@ -203,8 +273,16 @@ class Recipe:
                 "add_modes": list(self.add_modes) or None, "drop_modes": list(self.drop_modes) or None}
 
 
+def _refuse_constant(name: str) -> Any:
+    raise RecipeError(f"{name} is not a number a recipe may hold (strict JSON, finite numbers only).")
+
+
 def recipe_for(records: xr.Dataset, recipe: Recipe | None = None, **changes: Any) -> Recipe:
-    """A recipe bound to `records` (their checksum), with `changes` applied.
+    """A recipe bound to `records`, with `changes` applied.
+
+    A recipe without a checksum gets the records' (:func:`modalnb.records_checksum`). A
+    recipe made on other records keeps its own ``records_checksum`` (its provenance) and
+    records these records' checksum in ``replayed_on_checksum``.
 
     Examples
     --------
@@ -217,7 +295,28 @@ def recipe_for(records: xr.Dataset, recipe: Recipe | None = None, **changes: Any
     from .records import records_checksum
 
     base = recipe if recipe is not None else Recipe()
-    return replace(base, records_checksum=records_checksum(records), **changes)
+    checksum = records_checksum(records)
+    if base.records_checksum and base.records_checksum != checksum:
+        stamp = {"replayed_on_checksum": checksum}
+    else:
+        stamp = {"records_checksum": checksum, "replayed_on_checksum": None}
+    return replace(base, **{**stamp, **changes})
+
+
+def replay_note(recipe: Recipe, checksum: str) -> str | None:
+    """One line saying `recipe` was made on other records than those of `checksum`, or None.
+
+    Examples
+    --------
+    >>> replay_note(Recipe(records_checksum="sha256:1"), "sha256:2")[:40]
+    'the recipe was made on other records (it'
+    >>> replay_note(Recipe(records_checksum="sha256:1"), "sha256:1") is None
+    True
+    """
+    if not recipe.records_checksum or recipe.records_checksum == checksum:
+        return None
+    return (f"the recipe was made on other records (its checksum {recipe.records_checksum[:19]}..., "
+            f"these records {checksum[:19]}...); the table may differ from the original.")
 
 
 def _as_bool(value: Any, name: str) -> bool:
@@ -239,13 +338,131 @@ def save_recipe(recipe: Recipe, path: str | os.PathLike[str]) -> Path:
     return atomic_write_text(path, recipe.to_json())
 
 
-def load_recipe(path: str | os.PathLike[str]) -> Recipe:
-    """Read a recipe file; refuse (one-line :class:`RecipeError`) what cannot be read exactly."""
+def content_hash(data: bytes) -> str:
+    """SHA-256 of a recipe file's bytes (how a session notices another one changed it).
+
+    Examples
+    --------
+    >>> content_hash(b"{}")[:15]
+    'sha256:44136fa3'
+    """
+    return "sha256:" + hashlib.sha256(data).hexdigest()
+
+
+def _read_bytes(path: str | os.PathLike[str]) -> bytes:
     p = Path(path)
-    if not p.is_file():
-        raise FileNotFoundError(2, "recipe file not found", str(p))
+    if p.is_dir():
+        raise RecipeError(f"{p}: is a folder, not a recipe file. Hint: give the recipe's file name.")
+    if not p.exists():
+        raise RecipeFileNotFoundError(f"{p}: recipe file not found. Hint: check the path.")
     try:
-        text = p.read_text(encoding="utf-8")
+        return p.read_bytes()
+    except OSError as exc:
+        raise RecipeError(f"{p}: cannot be read ({exc.strerror or exc}).") from None
+
+
+def read_recipe_file(path: str | os.PathLike[str]) -> tuple[Recipe, str]:
+    """The recipe in a file and the content hash (:func:`content_hash`) of what was read.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> p = save_recipe(Recipe(n_modes=2), pathlib.Path(tempfile.mkdtemp()) / "r.json")
+    >>> r, h = read_recipe_file(p)
+    >>> r.n_modes, h == content_hash(p.read_bytes())
+    (2, True)
+    """
+    data = _read_bytes(path)
+    try:
+        text = data.decode("utf-8")
     except UnicodeDecodeError:
-        raise RecipeError(f"{p}: not a text (UTF-8) file.") from None
-    return Recipe.from_json(text, source=str(p))
+        raise RecipeError(f"{path}: not a text (UTF-8) file.") from None
+    return Recipe.from_json(text, source=str(path)), content_hash(data)
+
+
+def load_recipe(path: str | os.PathLike[str]) -> Recipe:
+    """Read a recipe file; refuse (one-line :class:`RecipeError`) what cannot be read exactly.
+
+    A missing file is a :class:`RecipeFileNotFoundError` (both a :class:`RecipeError`
+    and a ``FileNotFoundError``).
+
+    Examples
+    --------
+    >>> try:
+    ...     load_recipe("no/such.recipe.json")
+    ... except FileNotFoundError as exc:
+    ...     print(type(exc).__name__)
+    RecipeFileNotFoundError
+    """
+    return read_recipe_file(path)[0]
+
+
+#: The fields that are the user's choices (merged field by field when two sessions write
+#: one recipe file); the others are provenance, written by whoever writes.
+CHOICE_FIELDS = ("band", "window", "n_modes", "add_modes", "drop_modes", "hit_overrides",
+                 "check_thresholds", "correct_exponential_window", "notes")
+_KEYED = ("hit_overrides", "check_thresholds")  # merged key by key
+_SETS = ("add_modes", "drop_modes")  # merged element by element
+
+
+def merge_recipes(base: Recipe, ours: Recipe, theirs: Recipe) -> tuple[Recipe, list[str]]:
+    """Three-way merge of the choices in two recipes that both started from `base`.
+
+    A choice changed on one side only is taken from that side; a choice changed on both
+    sides to different values is a conflict, where `ours` wins and the conflict is
+    described (one phrase each, for a warning). Hit overrides and check thresholds merge
+    key by key, added and dropped modes frequency by frequency; provenance (checksums,
+    source, version) comes from `ours`.
+
+    Returns
+    -------
+    merged : Recipe
+    conflicts : list of str
+        Phrases like ``"hit 3: here accept, elsewhere reject"``.
+
+    Examples
+    --------
+    >>> base = Recipe()
+    >>> merged, conflicts = merge_recipes(base, Recipe(hit_overrides={3: False}),
+    ...                                   Recipe(window=(0.1, 1.0)))
+    >>> merged.hit_overrides, merged.window, conflicts
+    ({3: False}, (0.1, 1.0), [])
+    """
+    changes: dict[str, Any] = {}
+    conflicts: list[str] = []
+    for name in CHOICE_FIELDS:
+        b, o, t = getattr(base, name), getattr(ours, name), getattr(theirs, name)
+        if name in _KEYED:
+            out = dict(o)
+            for key in sorted(set(b) | set(o) | set(t), key=str):
+                bk, ok, tk = b.get(key), o.get(key), t.get(key)
+                if tk == bk or tk == ok:
+                    continue
+                if ok == bk:  # changed elsewhere only
+                    if tk is None:
+                        out.pop(key, None)
+                    else:
+                        out[key] = tk
+                else:
+                    conflicts.append(_conflict(name, key, ok, tk))
+            changes[name] = dict(sorted(out.items(), key=lambda kv: str(kv[0])))
+        elif name in _SETS:
+            added = set(t) - set(b)
+            removed = set(b) - set(t)
+            changes[name] = sorted((set(o) | added) - removed)
+        elif t != b and t != o:
+            if o == b:
+                changes[name] = t
+            else:
+                conflicts.append(_conflict(name, None, o, t))
+    return replace(ours, **changes), conflicts
+
+
+def _conflict(name: str, key: Any, ours: Any, theirs: Any) -> str:
+    def show(v: Any) -> str:
+        if name == "hit_overrides":
+            return {True: "accept", False: "reject", None: "automatic"}[v]
+        return "automatic" if v is None else repr(v)
+
+    what = f"hit {key}" if name == "hit_overrides" else (f"{name}.{key}" if key is not None else name)
+    return f"{what}: here {show(ours)}, elsewhere {show(theirs)}"

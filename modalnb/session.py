@@ -13,15 +13,29 @@ path of :func:`modalnb.run_recipe`, so a saved recipe replays headlessly (``moda
 preview, :attr:`Analysis.preview`; the same variables); exports always come from a full
 fit.
 
+Autosave and two sessions on one recipe file: each write first compares the file's content
+hash with the one this session last read or wrote. When another session (a second
+notebook, a CLI run) changed the file meanwhile, its choices are merged with this
+session's (:func:`modalnb.recipe.merge_recipes`: unrelated choices both kept; the same
+choice changed on both sides keeps this session's and says so in one
+:class:`~modalnb.RecipeConflictWarning` line) and the fit includes them. The
+read-compare-write step holds an advisory lock on the recipe's folder (``fcntl.flock``,
+where the platform has it), so two writers never interleave. A recipe file that cannot
+be read or written (no permission, a folder in its place) never stops an analysis: it
+opens without autosave, says so in one :class:`~modalnb.ModalnbWarning` line, and
+:meth:`Analysis.autosave_to` names another file.
+
 Nothing here imports ipywidgets or plotly; :meth:`Analysis.export` imports the report
 writer (which uses plotly) only when called.
 """
 
 from __future__ import annotations
 
+import contextlib
 import math
 import os
-from collections.abc import Callable
+import warnings
+from collections.abc import Callable, Iterator
 from dataclasses import replace
 from pathlib import Path
 from typing import Any
@@ -29,13 +43,29 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
-from ._errors import ModalnbError
+from ._errors import (
+    ModalnbError,
+    OtherRecordsWarning,
+    RecipeAutosaveWarning,
+    RecipeConflictWarning,
+    RecipeFileNotFoundError,
+)
+from ._files import atomic_write_text
 from .estimate import mac_matrix
 from .fitting import ModeFit
-from .recipe import Recipe, RecipeError, load_recipe, recipe_for, save_recipe
+from .recipe import (
+    Recipe,
+    RecipeError,
+    content_hash,
+    merge_recipes,
+    read_recipe_file,
+    recipe_for,
+    replay_note,
+    save_recipe,
+)
 from .records import get_sample_rate, records_checksum, validate_records
 
-__all__ = ["Analysis", "default_recipe_path"]
+__all__ = ["Analysis", "default_recipe_path", "recipe_path_problem"]
 
 #: Events sent to subscribers: ``busy`` (a slow step starts; ``analysis.busy`` holds its
 #: text), ``result`` (a new result), ``error`` (a refit failed; ``analysis.error``).
@@ -56,6 +86,56 @@ def default_recipe_path(records_path: str | os.PathLike[str]) -> Path:
     return p.with_name(p.stem + ".recipe.json")
 
 
+def recipe_path_problem(path: str | os.PathLike[str]) -> str | None:
+    """Why a recipe cannot be autosaved at `path` (a short phrase), or None when it can.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> recipe_path_problem(tempfile.mkdtemp())
+    'a folder is in its place'
+    """
+    p = Path(path)
+    if p.is_dir():
+        return "a folder is in its place"
+    if not p.parent.is_dir():
+        return f"its folder {str(p.parent)!r} does not exist"
+    if p.exists():
+        if not os.access(p, os.R_OK):
+            return "it cannot be read (no permission)"
+        if not os.access(p, os.W_OK):
+            return "it cannot be written (no permission)"
+    if not os.access(p.parent, os.W_OK | os.X_OK):
+        return "its folder cannot be written (no permission)"
+    return None
+
+
+@contextlib.contextmanager
+def _folder_lock(folder: Path) -> Iterator[None]:
+    """Advisory exclusive lock on `folder` (``fcntl.flock`` on the folder itself, so no
+    lock file is ever left behind); a no-op where the platform has no ``fcntl``."""
+    try:
+        import fcntl
+    except ImportError:  # pragma: no cover - Windows
+        yield
+        return
+    try:
+        fd = os.open(folder, os.O_RDONLY)
+    except OSError:
+        yield
+        return
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX)
+        yield
+    finally:
+        os.close(fd)  # closing releases the lock
+
+
+def _warn(category: type[Warning], message: str) -> None:
+    # stacklevel 4: past _warn and the Analysis method, to the user's call
+    warnings.warn(" ".join(message.split()), category, stacklevel=4)
+
+
 class Analysis:
     """One analysis of one record set: records, recipe, hit checks, modal result.
 
@@ -66,7 +146,10 @@ class Analysis:
     recipe : Recipe, optional
         Starting choices; default all automatic. It is bound to the records' checksum.
     recipe_path : path, optional
-        Where every change is autosaved (atomically). None: no autosave.
+        Where every change is autosaved (atomically, merged with changes another session
+        made to the same file). None: no autosave. A path that cannot be written (no
+        permission, a folder in its place) is one :class:`~modalnb.ModalnbWarning` line
+        and no autosave; :meth:`autosave_to` names another.
     source : str, optional
         Where the records came from (shown in messages, kept in the recipe).
     fit : bool
@@ -82,7 +165,10 @@ class Analysis:
     error : str or None
         One-line message of the last failed refit (None after a good one).
     warning : str or None
-        A note worth showing (a recipe made on other records).
+        A note worth showing (a recipe made on other records, no autosave, choices merged
+        from another session).
+    recipe_path : Path or None
+        Where the recipe is autosaved (None: nowhere).
     busy : str or None
         Text of the slow step under way (None when idle).
 
@@ -102,11 +188,14 @@ class Analysis:
         recipe_path: str | os.PathLike[str] | None = None,
         source: str | None = None,
         fit: bool = True,
+        _loaded_hash: str | None = None,
     ) -> None:
         validate_records(records, source=source)
         self.records = records
         self.source = source
-        self.recipe_path = Path(recipe_path) if recipe_path is not None else None
+        self.recipe_path: Path | None = None
+        #: content hash of the recipe file as this session last read or wrote it
+        self._seen_hash: str | None = None
         self.warning: str | None = None
         self.error: str | None = None
         self.busy: str | None = None
@@ -120,18 +209,57 @@ class Analysis:
         #: True when :attr:`result` came from the fast refit (see :meth:`_fit`).
         self.preview = False
         checksum = records_checksum(records)
-        if recipe is not None and recipe.records_checksum and recipe.records_checksum != checksum:
-            self.warning = (
-                "the recipe was made on other records (checksum differs); the table may "
-                "differ from the original."
-            )
+        note = replay_note(recipe, checksum) if recipe is not None else None
+        if note:
+            self.warning = note
+            _warn(OtherRecordsWarning, note)
         changes: dict[str, Any] = {}
         if source and (recipe is None or not recipe.source):
             changes["source"] = source
         self.recipe = recipe_for(records, recipe, **changes)
         self._initial = self.recipe
+        if recipe_path is not None:
+            self._set_autosave(Path(recipe_path), _loaded_hash)
         if fit:
             self._apply(self.recipe, full=True)
+
+    def _set_autosave(self, path: Path, seen_hash: str | None = None) -> bool:
+        """Autosave to `path` if it can be written; otherwise warn (one line) and don't."""
+        problem = recipe_path_problem(path)
+        if problem:
+            self._no_autosave(path, problem)
+            return False
+        self.recipe_path = path
+        if seen_hash is None and path.is_file():
+            with contextlib.suppress(OSError):
+                seen_hash = content_hash(path.read_bytes())
+        self._seen_hash = seen_hash
+        return True
+
+    def _no_autosave(self, path: Path, problem: str) -> None:
+        self.recipe_path = None
+        self._seen_hash = None
+        self.warning = (f"{path}: {problem}; choices will not be autosaved there. "
+                        "Hint: analysis.autosave_to('other.recipe.json').")
+        _warn(RecipeAutosaveWarning, self.warning)
+
+    def autosave_to(self, path: str | os.PathLike[str]) -> Path | None:
+        """Autosave every change to `path` from now on, and save the current recipe there now.
+
+        An existing file there is replaced by this session's recipe. Returns the path, or
+        None (with one warning line, :attr:`warning`) when it cannot be written either.
+
+        Examples
+        --------
+        >>> a = Analysis.open("tap.nc")               # doctest: +SKIP
+        >>> a.autosave_to("/home/me/tap.recipe.json")  # doctest: +SKIP
+        """
+        p = Path(path)
+        if not self._set_autosave(p):
+            return None
+        self._seen_hash = None  # replace whatever is there: the caller chose this file
+        self.warning = None
+        return self._autosave(self.recipe, force=True)
 
     # --- construction --------------------------------------------------------------
     @classmethod
@@ -152,7 +280,10 @@ class Analysis:
         recipe_path : path, optional
             Recipe file to restore and autosave to. Default for a file:
             ``<stem>.recipe.json`` beside it (:func:`default_recipe_path`); for a Dataset
-            there is no default (no autosave).
+            there is no default (no autosave). When it cannot be read or written (no
+            permission, a folder in its place, not a usable recipe), the analysis opens
+            with automatic choices, leaves the file as it is, warns in one line and does not
+            autosave (:meth:`autosave_to` names another file).
         fit : bool
             Fit at once (default True).
         **open_options
@@ -173,10 +304,26 @@ class Analysis:
             records = open_records(path_or_records, **open_options)
             if recipe_path is None:
                 recipe_path = default_recipe_path(path_or_records)
-        recipe = None
-        if recipe_path is not None and Path(recipe_path).is_file():
-            recipe = load_recipe(recipe_path)
-        return cls(records, recipe, recipe_path=recipe_path, source=source, fit=fit)
+        recipe, seen = None, None
+        if recipe_path is not None:
+            p = Path(recipe_path)
+            problem = recipe_path_problem(p)
+            if p.is_file() and problem not in ("it cannot be read (no permission)",):
+                try:
+                    recipe, seen = read_recipe_file(p)
+                except RecipeFileNotFoundError:
+                    pass  # removed meanwhile: start afresh
+                except RecipeError as exc:
+                    # unreadable, or not a usable recipe: open anyway, never overwrite it
+                    problem = str(exc).removeprefix(f"{p}: ").rstrip(".")
+            if problem:
+                a = cls(records, recipe, source=source, fit=False)
+                a._no_autosave(p, problem)
+                if fit:
+                    a._apply(a.recipe, full=True)
+                return a
+        return cls(records, recipe, recipe_path=recipe_path, source=source, fit=fit,
+                   _loaded_hash=seen)
 
     # --- views ---------------------------------------------------------------------
     def subscribe(self, fn: Listener) -> Callable[[], None]:
@@ -282,22 +429,101 @@ class Analysis:
         return self._apply(recipe)
 
     def _apply(self, recipe: Recipe, *, full: bool = False) -> bool:
-        self.busy = "fitting modes"
-        self._notify("busy")
-        try:
-            result, checks, preview = self._fit(recipe, full=full)
-        except (ModalnbError, np.linalg.LinAlgError) as exc:
+        reported: set[str] = set()
+        for attempt in range(3):
+            if self.recipe_path is not None:
+                recipe = self._merge_from_file(recipe, reported)
+            self.busy = "fitting modes"
+            self._notify("busy")
+            try:
+                result, checks, preview = self._fit(recipe, full=full)
+            except (ModalnbError, np.linalg.LinAlgError) as exc:
+                self.busy = None
+                self.error = " ".join(str(exc).split()) or type(exc).__name__
+                self._notify("error")
+                return False
             self.busy = None
-            self.error = " ".join(str(exc).split()) or type(exc).__name__
-            self._notify("error")
-            return False
-        self.busy = None
+            # the last attempt writes even when the file changed during the fit (merged)
+            if self.recipe_path is None or self._autosave(recipe, force=attempt == 2,
+                                                          reported=reported) is not False:
+                break
+            # another session wrote while this one was fitting: merge its choices, refit
         self.recipe, self.result, self.checks, self.error = recipe, result, checks, None
         self.preview = preview
-        if self.recipe_path is not None:
-            save_recipe(recipe, self.recipe_path)
         self._notify("result")
         return True
+
+    def _read_disk(self) -> tuple[Recipe | None, str | None, str | None]:
+        """(recipe, content hash, problem) of the autosave file now."""
+        assert self.recipe_path is not None
+        try:
+            data = self.recipe_path.read_bytes()
+        except FileNotFoundError:
+            return None, None, None
+        except OSError as exc:
+            return None, None, f"it cannot be read ({exc.strerror or exc})"
+        h = content_hash(data)
+        if h == self._seen_hash:
+            return None, h, None
+        try:
+            return Recipe.from_json(data.decode("utf-8"), source=str(self.recipe_path)), h, None
+        except (RecipeError, UnicodeDecodeError) as exc:
+            return None, h, f"another program wrote something that is not a recipe ({exc})"
+
+    def _merge_from_file(self, recipe: Recipe, reported: set[str]) -> Recipe:
+        """`recipe` with the choices another session saved to the file since this one last
+        read or wrote it (a three-way merge from :attr:`recipe`)."""
+        theirs, h, problem = self._read_disk()
+        if problem:
+            assert self.recipe_path is not None
+            self._no_autosave(self.recipe_path, problem)
+            return recipe
+        if theirs is None:
+            return recipe
+        merged, conflicts = merge_recipes(self.recipe, recipe, theirs)
+        fresh = [c for c in conflicts if c not in reported]
+        reported.update(conflicts)
+        if fresh:
+            self.warning = (f"{self.recipe_path}: another session changed the same choice "
+                            f"({'; '.join(fresh)}); kept this session's.")
+            _warn(RecipeConflictWarning, self.warning)
+        elif merged != recipe:
+            self.warning = f"{self.recipe_path}: merged choices saved by another session."
+        self._seen_hash = h
+        return merged
+
+    def _autosave(self, recipe: Recipe, *, force: bool = False,
+                  reported: set[str] | None = None) -> Path | None | bool:
+        """Write `recipe` to :attr:`recipe_path` if the file is as this session last saw it.
+
+        Returns the path written; False when another session changed the file meanwhile
+        (nothing written; the caller merges and refits) unless `force`, which merges
+        and writes; None when the file cannot be written (autosave stops, one warning).
+        """
+        path = self.recipe_path
+        assert path is not None
+        with _folder_lock(path.parent):
+            theirs, h, problem = self._read_disk()
+            if problem is None and h is not None and h != self._seen_hash:
+                if not force:
+                    return False
+                if theirs is not None:
+                    recipe, conflicts = merge_recipes(self.recipe, recipe, theirs)
+                    fresh = [c for c in conflicts if c not in (reported or set())]
+                    if fresh:
+                        _warn(RecipeConflictWarning, f"{path}: another session changed the same "
+                              f"choice ({'; '.join(fresh)}); kept this session's.")
+            if problem and not force:
+                self._no_autosave(path, problem)
+                return None
+            text = recipe.to_json()
+            try:
+                atomic_write_text(path, text)
+            except OSError as exc:
+                self._no_autosave(path, f"it cannot be written ({exc.strerror or exc})")
+                return None
+            self._seen_hash = content_hash(text.encode("utf-8"))
+        return path
 
     def _fit(self, recipe: Recipe, *, full: bool) -> tuple[xr.Dataset, xr.Dataset, bool]:
         """The fit of :func:`modalnb.run_recipe` (``ModeFit.from_recipe``), keeping the estimator.
@@ -310,11 +536,15 @@ class Analysis:
         est = self._estimator
         preview = (not full and recipe.window is not None and est is not None
                    and self._estimator_key == key)
+        # no warnings.catch_warnings here: it resets the kernel's process-wide warning
+        # state, which stopped the widgets' figures from drawing in JupyterLab
         if preview:
             assert est is not None
             result = est.refit(window=recipe.window)
         else:
-            est = ModeFit.from_recipe(recipe).fit(self.records)
+            est = ModeFit.from_recipe(recipe)
+            est._replay_warned = True  # said once, when the analysis was made (__init__)
+            est.fit(self.records)
             self._estimator, self._estimator_key = est, key
             result = est.result_
         return result, est.hit_checks_, preview
@@ -325,6 +555,11 @@ class Analysis:
         target = path if path is not None else self.recipe_path
         if target is None:
             raise ModalnbError("no recipe path: give one, e.g. save_recipe('tap.recipe.json').")
+        if self.recipe_path is not None and Path(target) == self.recipe_path:
+            written = self._autosave(self.recipe, force=True)
+            if written is None:
+                raise ModalnbError(f"{self.warning}")
+            return Path(target)
         return save_recipe(self.recipe, target)
 
     def export(

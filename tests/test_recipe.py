@@ -11,7 +11,7 @@ from modalnb.recipe import RECIPE_VERSION, Recipe, RecipeError, load_recipe, sav
 
 def test_round_trip_file(tmp_path):
     r = Recipe(band=(5.0, 900.0), window=(0.01, 1.5), n_modes=4, hit_overrides={3: False, 5: True},
-               check_thresholds={"double_hit_fraction": 0.2}, source="bay3.nc", notes="left bracket")
+               check_thresholds={"double_hit_level": 0.2}, source="bay3.nc", notes="left bracket")
     p = save_recipe(r, tmp_path / "recipe.json")
     back = load_recipe(p)
     assert back == r

@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
-from .._errors import ModalnbError, RecordError
+from .._errors import ModalnbError, OptionError, RecordError
 from .._utils import check_band, did_you_mean
 from ..records import get_sample_rate, validate_records
 from . import (
@@ -32,7 +32,7 @@ from . import (
 )
 from ._base import Check, Threshold, Variable
 
-__all__ = ["CHECKS", "CHECK_NAMES", "DEFAULT_REJECT", "THRESHOLDS", "check_hits"]
+__all__ = ["CHECKS", "CHECK_NAMES", "DEFAULT_REJECT", "THRESHOLDS", "check_hits", "check_threshold_value"]
 
 #: The checks, in the order they run and their phrases appear in ``reason``/``warnings``.
 #: A new check is a module with a ``CHECK`` and one entry here.
@@ -82,10 +82,17 @@ def _join(items: Iterable[str]) -> str:
 def _check_reject(reject: Iterable[str]) -> tuple[str, ...]:
     if isinstance(reject, str):
         reject = (reject,)
+    try:
+        names_ = list(reject)
+    except TypeError:
+        raise OptionError(
+            f"`reject` must be a list of check names, was {reject!r}; known checks: "
+            f"{', '.join(map(repr, CHECK_NAMES))}."
+        ) from None
     out = []
-    for name in reject:
+    for name in names_:
         if name not in CHECK_NAMES:
-            raise ModalnbError(
+            raise OptionError(
                 f"`reject` names an unknown check {name!r}; known checks: "
                 f"{', '.join(map(repr, CHECK_NAMES))}.{did_you_mean(str(name), CHECK_NAMES)}"
             )
@@ -93,22 +100,46 @@ def _check_reject(reject: Iterable[str]) -> tuple[str, ...]:
     return tuple(out)
 
 
+def check_threshold_value(name: str, value: Any) -> float | int:
+    """One threshold of :func:`check_hits` validated: its stored value, or a one-line
+    :class:`~modalnb.OptionError` naming it (unknown names get a did-you-mean).
+
+    Examples
+    --------
+    >>> check_threshold_value("clip_level", 0.99)
+    0.99
+    """
+    by_name = {t.name: t for t in THRESHOLDS}
+    if name not in by_name:
+        raise OptionError(
+            f"check_hits got an unknown threshold `{name}`.{did_you_mean(name, by_name)} "
+            f"Thresholds: {', '.join(by_name)}."
+        )
+    t = by_name[name]
+    if isinstance(value, (bool, np.bool_)):
+        raise OptionError(f"threshold `{name}` must be a number (default {t.default!r}), was {value!r}.")
+    try:
+        return t.validate(value)
+    except ModalnbError as exc:
+        raise OptionError(f"threshold {str(exc).rstrip('.')} (default {t.default!r}).") from None
+
+
 def _check_thresholds(given: Mapping[str, Any]) -> dict[str, Any]:
-    known = [t.name for t in THRESHOLDS]
-    for name in given:
-        if name not in known:
-            raise ModalnbError(
-                f"check_hits got an unknown threshold `{name}`.{did_you_mean(name, known)} "
-                f"Thresholds: {', '.join(known)}."
-            )
-    return {t.name: t.validate(given.get(t.name, t.default)) for t in THRESHOLDS}
+    out = {t.name: t.validate(t.default) for t in THRESHOLDS}
+    for name, value in given.items():
+        out[name] = check_threshold_value(name, value)
+    return out
 
 
 def _check_overrides(overrides: Mapping[Any, Any] | None, hits: list[int],
                      source: str | None) -> dict[int, bool]:
-    if not overrides:
+    if overrides is None:
         return {}
     where = f"{source}: " if source else ""
+    if not isinstance(overrides, Mapping):
+        raise OptionError(
+            f"{where}`overrides` must be a mapping {{hit: True/False}}, was {overrides!r}."
+        )
     out: dict[int, bool] = {}
     for key, value in overrides.items():
         label: int | None = None
@@ -185,8 +216,9 @@ __CHANNEL_VARIABLES__
     RecordError
         Invalid records, an override for an unknown hit, a malformed band or one above
         Nyquist.
-    ModalnbError
-        An unknown check name in `reject`, an unknown or invalid threshold.
+    OptionError
+        An unknown check name in `reject`, an unknown or invalid threshold (a
+        :class:`~modalnb.ModalnbError`).
 
     Examples
     --------
@@ -205,15 +237,15 @@ __CHANNEL_VARIABLES__
     >>> check_hits(ds, clip_levl=0.9)
     Traceback (most recent call last):
     ...
-    modalnb._errors.ModalnbError: check_hits got an unknown threshold `clip_levl`. Did you mean 'clip_level'? ...
+    modalnb._errors.OptionError: check_hits got an unknown threshold `clip_levl`. Did you mean 'clip_level'? ...
     """
     validate_records(records, source=source)
     reject_set = set(_check_reject(reject))
+    th = _check_thresholds(thresholds)
     fs = get_sample_rate(records)
     band_ = check_band(band, fs, error=RecordError, source=source)
     arrays = _hit.record_arrays(records, fs, band_)
     user = _check_overrides(overrides, arrays.labels, source)
-    th = _check_thresholds(thresholds)
 
     columns: dict[str, list[Any]] = {v.name: [] for v in _VARIABLES}
     for index, label in enumerate(arrays.labels):
