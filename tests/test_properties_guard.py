@@ -16,7 +16,6 @@ import warnings
 from pathlib import Path
 
 import numpy as np
-import pytest
 import xarray as xr
 from hypothesis import HealthCheck, event, example, given, settings
 from hypothesis import strategies as st
@@ -213,9 +212,6 @@ def test_fit_modes_gives_a_table_or_our_error(sig, n_modes, window, accept_all):
     _fit_or_our_error(sig, n_modes, window, accept_all)
 
 
-@pytest.mark.xfail(strict=True, reason="scales beyond 1e+-100 reach LinAlgError inside the "
-                   "engine: the extreme-scales item of issue 10 (another branch); remove this "
-                   "mark when that is merged")
 @settings(SETTINGS, max_examples=max(N // 3, 8))
 @given(sig=signals(**_TINY, scales=st.sampled_from([-300, -200, 200, 300])), **_FIT_OPTIONS)
 @example(sig=(1e-300 * _CLEAN[0], None, 1000.0, _CLEAN[1]), n_modes=None, window=None,

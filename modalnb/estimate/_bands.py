@@ -50,7 +50,6 @@ from ._core import (
     W_SCALE_FRACTION,
     CoreResult,
     _rss_increase,
-    compress,
     fit_core,
 )
 from ._pencil import TWO_PI, PencilOutput, find_poles, initial_modes
@@ -151,17 +150,25 @@ def _bands_of(spec: np.ndarray, nfft: int, n: int, fs: float, f_lo: float, f_hi:
     guard = GUARD_FRACTION * width
     freqs = np.arange(spec.shape[1]) * df
     t_len = n / fs
-    # periodogram summed over the signals, each over its noise level (the median of its
-    # periodogram over the searched range, ln 2 times the mean for white noise); a band
-    # none of whose lines exceeds ln(K) + 3 (K lines searched: the largest of K unit
-    # exponentials exceeds it with probability about e^-3; common practice) holds no pole
-    # the pencil would accept, and is skipped
+    # periodogram of each signal over its noise level (the median of its periodogram over
+    # the searched range, ln 2 times the mean for white noise), the largest over signals; a
+    # band none of whose lines exceeds ln(K) + 3 (K lines x signals searched: the largest of
+    # K unit exponentials exceeds it with probability about e^-3; common practice) holds no
+    # pole the pencil would accept, and is skipped
     rng_idx = np.nonzero((freqs >= f_lo) & (freqs <= f_hi))[0]
     pw = np.abs(spec[:, rng_idx]) ** 2
     level = np.median(pw, axis=1) / np.log(2.0)
-    power = np.zeros(spec.shape[1])
-    power[rng_idx] = np.sum(pw / np.where(level > 0, level, 1.0)[:, None], axis=0) / spec.shape[0]
-    line_limit = np.log(max(rng_idx.size, 2)) + 3.0
+    pw /= np.where(level > 0, level, 1.0)[:, None]
+    loud = np.zeros(spec.shape[1], bool)
+    k_all = pw.shape[1]
+    for blk in (1, 8, 64, 512):  # a damped line spreads over many lines: block means too
+        nb = k_all // blk
+        if nb < 1:
+            break
+        means = pw[:, : nb * blk].reshape(pw.shape[0], nb, blk).mean(axis=2).max(axis=0)
+        lim = _mean_limit(blk, np.log(max(nb * pw.shape[0], 2)) + 3.0)
+        hot = np.repeat(means > lim, blk)
+        loud[rng_idx[: hot.size]] |= hot
     del pw
     out = []
     from scipy.fft import irfft, next_fast_len
@@ -193,9 +200,22 @@ def _bands_of(spec: np.ndarray, nfft: int, n: int, fs: float, f_lo: float, f_hi:
         t = (skip + np.arange(sig.shape[1])) / fs_b
         frac = float(np.sum(taper**2) * df / (0.5 * fs_b))
         core = (f_sel >= lo) & (f_sel < hi)
-        lines = bool(core.any() and np.max(power[idx[core]]) > line_limit)
+        lines = bool(core.any() and loud[idx[core]].any())
         out.append(_Band(lo, hi, k_shift * df, fs_b, t, sig, frac, margin, skip / fs_b, lines))
     return out
+
+
+def _mean_limit(blk: int, c: float) -> float:
+    """x > 1 with ``blk (x - 1 - ln x) = c``: the mean of `blk` unit exponentials exceeds
+    it with probability at most ``e^-c`` (the Chernoff bound of a Gamma(blk) mean)."""
+    lo, hi = 1.0, 2.0 + 2.0 * c / blk + c
+    for _ in range(60):
+        mid = 0.5 * (lo + hi)
+        if blk * (mid - 1.0 - np.log(mid)) < c:
+            lo = mid
+        else:
+            hi = mid
+    return hi
 
 
 def _pencil_length(sig: np.ndarray, fs_b: float) -> int:
@@ -213,6 +233,18 @@ def _pencil_length(sig: np.ndarray, fs_b: float) -> int:
     if above.size == 0:
         return min(cap, 8 * blk)
     return int(min(cap, max((above[-1] + 2) * blk, 8 * blk, 256)))
+
+
+def _compress_centred(y: np.ndarray, r: int) -> np.ndarray:
+    """Leading principal-component signals of `y` (P, N) about each signal's mean, as
+    :func:`._core.compress` of ``y - mean`` but without a centred copy of `y`."""
+    mu = y.mean(axis=1, keepdims=True)
+    if y.shape[0] <= r:
+        return y - mu
+    gram = y @ y.T - y.shape[1] * (mu @ mu.T)
+    w, v = np.linalg.eigh(gram)
+    top = v[:, np.argsort(w)[::-1][:r]]
+    return top.T @ y - top.T @ mu
 
 
 def _decay_length(sig: np.ndarray) -> int:
@@ -317,7 +349,7 @@ def fit_poles_banded(
     f_lo, f_hi = float(band[0]), float(band[1])
     pad = max(0.02 * (f_hi - f_lo), 4.0 * fs / n)
     f_lo, f_hi = max(f_lo - pad, 0.0), min(f_hi + pad, 0.5 * fs * 0.98)
-    yc = compress(y - y.mean(axis=1, keepdims=True), MAX_COMPONENTS)
+    yc = _compress_centred(y, MAX_COMPONENTS)
     nfft = next_fast_len(2 * n)
     spec = rfft(yc, nfft, axis=1)
     t_len = n / fs
@@ -382,10 +414,10 @@ def fit_poles_banded(
                 continue
             wd_b = np.sqrt(ub)
             wd = wd_b + TWO_PI * b.shift_hz
-            # the core, and half a margin beyond it: a pole at the shared edge of two bands
+            # the core, and its margins: a pole at the shared edge of two bands
             # is kept by both, and the one deeper inside its band wins (_edge_unique)
             depth = min(wd / TWO_PI - b.lo, b.hi - wd / TWO_PI)
-            if depth < -0.5 * b.margin or s_k >= heavy:
+            if depth < -b.margin or s_k >= heavy:
                 continue
             # packed band parameters -> packed full-rate parameters
             a = np.diag([cb.prob.w_scale / w_scale,
@@ -569,8 +601,11 @@ def fit_banded(prep: object, band: tuple[float, float], asked: np.ndarray,
         ok = live & (sig > 0)
         weight[ok] = 1.0 / sig[ok]
         prep.noise_from = "periodogram median in the band (long record, no pre-trigger noise)"
-    d = data[:, live, :] * weight[live][None, :, None]
-    y = d.reshape(-1, n)
+    # stacked weighted signals, built hit by hit into one array (no full-size temporaries)
+    n_live = int(live.sum())
+    y = np.empty((data.shape[0] * n_live, n))
+    for h in range(data.shape[0]):
+        np.multiply(data[h, live, :], weight[live][:, None], out=y[h * n_live : (h + 1) * n_live])
     t_rel = prep.t_win - prep.t_win[0]
     core = fit_poles_banded(y, t_rel, fs, (lo, hi), x0=x0, max_order=max_order,
                             protect_hz=asked if asked.size else None)
