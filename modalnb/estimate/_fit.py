@@ -275,16 +275,43 @@ def _blas_limit(n: int | None) -> Iterator[None]:
 # ---------------------------------------------------------------- table steps
 def _residue_fit(prep: _Prepared, core: CoreResult) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Linear coefficients of every signal (unweighted data, least squares at the final
-    poles), R^2 per channel and the residual RMS per channel."""
+    poles), R^2 per channel and the residual RMS per channel.
+
+    One QR factorisation of the basis serves every channel, taken one at a time, so the
+    working memory is the basis plus one channel's hits (not several copies of the whole
+    record set: long records). A basis too ill-conditioned for a triangular solve falls
+    back to a minimum-norm least squares over all signals at once.
+    """
     n_hit_acc, n_ch, n = prep.data.shape
     phi = core.prob.basis(core.x)
+    q, rr = np.linalg.qr(phi)
+    d = np.abs(np.diag(rr))
+    if d.size == 0 or d.min() <= 1e-10 * d.max():
+        return _residue_fit_lstsq(prep, phi)
+    from scipy.linalg import solve_triangular
+
+    coef = np.empty((phi.shape[1], n_hit_acc * n_ch))
+    r_sig, r_res = np.empty(n_ch), np.empty(n_ch)
+    for c in range(n_ch):
+        blk = prep.data[:, c, :].T  # (n, hits)
+        proj = q.T @ blk
+        coef[:, c::n_ch] = solve_triangular(rr, proj)
+        # R^2 = 1 - (RMS residual / RMS signal)^2: a ratio of scale-safe RMS values
+        r_res[c] = rms(blk - q @ proj)
+        r_sig[c] = rms(blk - blk.mean(axis=0, keepdims=True))
+    fit_r2 = np.where(r_sig > 0, 1.0 - (r_res / np.where(r_sig > 0, r_sig, 1.0)) ** 2, 0.0)
+    return coef, fit_r2, r_res
+
+
+def _residue_fit_lstsq(prep: _Prepared, phi: np.ndarray
+                       ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`_residue_fit` by one minimum-norm least squares (a rank-deficient basis)."""
+    n_hit_acc, n_ch, n = prep.data.shape
     flat = prep.data.transpose(2, 0, 1).reshape(n, -1)
     coef, *_ = np.linalg.lstsq(phi, flat, rcond=None)
-    fitted = (phi @ coef).reshape(n, n_hit_acc, n_ch)
-    resid = flat.reshape(n, n_hit_acc, n_ch) - fitted
+    resid = flat.reshape(n, n_hit_acc, n_ch) - (phi @ coef).reshape(n, n_hit_acc, n_ch)
     dm = flat.reshape(n, n_hit_acc, n_ch)
     dm = dm - dm.mean(axis=0, keepdims=True)
-    # R^2 = 1 - (RMS residual / RMS signal)^2: a ratio of scale-safe RMS values
     r_sig, r_res = rms(dm, axis=(0, 1)), rms(resid, axis=(0, 1))
     fit_r2 = np.where(r_sig > 0, 1.0 - (r_res / np.where(r_sig > 0, r_sig, 1.0)) ** 2, 0.0)
     return coef, fit_r2, r_res
