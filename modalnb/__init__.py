@@ -10,6 +10,7 @@ Headless core (never imports ipywidgets or plotly):
   :func:`modal_conversions`
 * FRFs: :func:`frf` (measured, with coherence), :func:`synthesise_frf` (of the modal
   table), :func:`write_frf` (``frf.nc``)
+* model against test: :func:`pair_modes` (MAC and frequency pairing with a model's modes)
 * the deliverable: :class:`Recipe`, :func:`load_recipe`, :func:`save_recipe`,
   :func:`run_recipe` (a reproducible replay), :func:`write_modal_table`
 * the notebook state: :class:`Analysis` (headless; the widgets are views over it)
@@ -36,6 +37,7 @@ from .export import write_frf, write_modal_table
 from .fitting import ModeFit, fit_modes
 from .frf import frf, synthesise_frf
 from .io import open_records, save_records, segment_recording
+from .pairing import pair_modes
 from .pipeline import run_recipe
 from .recipe import Recipe, load_recipe, package_version, save_recipe
 from .records import records_checksum, records_from_arrays, validate_records
@@ -68,6 +70,7 @@ __all__ = (
     "frf",
     "synthesise_frf",
     "write_frf",
+    "pair_modes",
     # the deliverable
     "run_recipe",
     "write_modal_table",
