@@ -8,6 +8,9 @@ Headless core (never imports ipywidgets or plotly):
 * estimation: :func:`fit_modes` (one scripted fit), :class:`ModeFit` (repeated refits),
   :func:`mac`, :func:`mac_matrix`, :func:`mpc`, :func:`cross_checks`,
   :func:`modal_conversions`
+* FRFs: :func:`frf` (measured, with coherence), :func:`synthesise_frf` (of the modal
+  table), :func:`write_frf` (``frf.nc``)
+* model against test: :func:`pair_modes` (MAC and frequency pairing with a model's modes)
 * the deliverable: :class:`Recipe`, :func:`load_recipe`, :func:`save_recipe`,
   :func:`run_recipe` (a reproducible replay), :func:`write_modal_table`
 * test campaigns: :func:`fit_campaign` (many record sets, one recipe, modes tracked; dask)
@@ -38,9 +41,11 @@ from ._errors import (
 from .campaign import fit_campaign
 from .checks import check_hits, format_hit_report
 from .estimate import cross_checks, mac, mac_matrix, modal_conversions, mpc
-from .export import write_modal_table
+from .export import write_frf, write_modal_table
 from .fitting import ModeFit, fit_modes
+from .frf import frf, synthesise_frf
 from .io import open_records, save_records, segment_recording
+from .pairing import pair_modes
 from .pipeline import run_recipe
 from .recipe import Recipe, load_recipe, package_version, save_recipe
 from .records import records_checksum, records_from_arrays, validate_records
@@ -69,6 +74,11 @@ __all__ = (
     "mpc",
     "cross_checks",
     "modal_conversions",
+    # FRFs
+    "frf",
+    "synthesise_frf",
+    "write_frf",
+    "pair_modes",
     # the deliverable
     "run_recipe",
     "write_modal_table",

@@ -21,6 +21,9 @@ Files written by :func:`write_modal_table` (the contract other tools rely on):
 * ``poles_set_aside.csv`` — ``pole,frequency_hz,damping_ratio,frequency_hz_std,energy,reason``
   (the residual terms that are not modes; :mod:`._aside`);
 * ``modes.nc`` (the result Dataset), ``modes.json`` (everything above), ``recipe.json``.
+
+:func:`write_frf` (:mod:`.frf_file`) writes an FRF Dataset as ``frf.nc`` (``frf_real``,
+``frf_imag``, ``coherence``, ...).
 """
 
 from __future__ import annotations
@@ -34,6 +37,7 @@ from ._rows import (
     modes_rows,
     shapes_rows,
 )
+from .frf_file import write_frf
 from .report import report_html, write_report
 from .table_files import write_modal_table
 from .terminal import format_modal_table
@@ -50,4 +54,5 @@ __all__ = [
     "format_modal_table",
     "write_report",
     "report_html",
+    "write_frf",
 ]
