@@ -268,8 +268,9 @@ def fit_core(
         n_lin = y.shape[0] * (x.size + n_extra)
         rss = full_rss(y_t_full, prob, x)
         s2 = rss / max(n_tot - n_lin - x.size, 1)
-        signif = energy / max(s2, 1e-300)
-        lr = lr / max(s2, 1e-300)
+        with np.errstate(over="ignore"):  # noise-free data: infinitely significant
+            signif = energy / max(s2, 1e-300)
+            lr = lr / max(s2, 1e-300)
         # duplicates: two modes converged onto one pole
         sigma, u = prob.unpack(x)
         dup = np.zeros(sigma.size, bool)
@@ -320,7 +321,8 @@ def fit_core(
             n_lin = y.shape[0] * (x.size + n_extra)
             rss = full_rss(y_t_full, prob, x)
             s2 = rss / max(n_tot - n_lin - x.size, 1)
-            signif = energy / max(s2, 1e-300)
+            with np.errstate(over="ignore"):
+                signif = energy / max(s2, 1e-300)
             break
     # final polish: scipy's least_squares (a converged start: few evaluations); users get
     # it as an lmfit result, built when asked. A deferred polish (refits) only records the
