@@ -39,13 +39,13 @@ import io
 import json
 import os
 from collections.abc import Sequence
-from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from .._files import atomic_write_text
+from ..testing.scenarios import ChainModel, state_space_modes
 
 __all__ = ["LumpedModel", "lumped_model", "lumped_records", "bracket_model",
            "production_campaign", "PRODUCTION_CHANNELS"]
@@ -57,26 +57,9 @@ _DAMPING = 0.008
 _CRACK_FACTOR = 0.70  # fixture spring of a cracked part
 
 
-@dataclass
-class LumpedModel:
-    """Mass, damping and stiffness matrices and the eigen-solution of the state matrix."""
-
-    M: np.ndarray
-    C: np.ndarray
-    K: np.ndarray
-    eigenvalues: np.ndarray  # one of each conjugate pair (Im > 0), ascending |lambda|
-    right: np.ndarray
-    left: np.ndarray
-
-    @property
-    def frequency_hz(self) -> np.ndarray:
-        """Natural frequencies ``|lambda| / 2 pi`` (Hz)."""
-        return np.abs(self.eigenvalues) / (2 * np.pi)
-
-    @property
-    def damping_ratio(self) -> np.ndarray:
-        """``-Re(lambda) / |lambda|``."""
-        return -self.eigenvalues.real / np.abs(self.eigenvalues)
+#: The eigen-solution container of the generated campaigns (matrices, eigenvalues, right
+#: and left eigenvectors; ``frequency_hz``, ``damping_ratio``).
+LumpedModel = ChainModel
 
 
 def lumped_model(M: np.ndarray, K: np.ndarray, damping_ratio: float | None = None,
@@ -106,13 +89,7 @@ def lumped_model(M: np.ndarray, K: np.ndarray, damping_ratio: float | None = Non
         else:
             a, b = 2 * z * w1 * w2 / (w1 + w2), 2 * z / (w1 + w2)
         C = a * M + b * K
-    mi = np.linalg.inv(M)
-    A = np.block([[np.zeros((n, n)), np.eye(n)], [-mi @ K, -mi @ C]])
-    lam, wl, vr = scipy.linalg.eig(A, left=True, right=True)
-    keep = lam.imag > 0
-    lam, wl, vr = lam[keep], wl[:, keep], vr[:, keep]
-    order = np.argsort(np.abs(lam))
-    return LumpedModel(M, np.asarray(C, float), K, lam[order], vr[:, order], wl[:, order])
+    return state_space_modes(M, C, K)
 
 
 def lumped_records(model: LumpedModel, force_at: Sequence[float], *, n_hits: int = 3,

@@ -231,14 +231,34 @@ def chain_model(sc: Scenario) -> ChainModel:
     C = a * M + b * K
     if sc.ground_damper:
         C[0, 0] += sc.ground_damper * 2 * math.sqrt(K[0, 0] * M[0, 0])
+    mdl = state_space_modes(M, C, K)
+    mdl.extra["rayleigh"] = (a, b)
+    return mdl
+
+
+def state_space_modes(M: np.ndarray, C: np.ndarray, K: np.ndarray) -> ChainModel:
+    """Eigen-solution of ``M x'' + C x' + K x = 0``: ``scipy.linalg.eig`` of the state
+    matrix ``[[0, I], [-M^-1 K, -M^-1 C]]``, one eigenvalue of each conjugate pair
+    (Im > 0), ascending ``|lambda|``, with right and left eigenvectors.
+
+    Examples
+    --------
+    >>> w = 2 * np.pi * 10.0
+    >>> mdl = state_space_modes(np.eye(1), np.array([[2 * 0.01 * w]]), np.array([[w**2]]))
+    >>> round(float(mdl.frequency_hz[0]), 6), round(float(mdl.damping_ratio[0]), 6)
+    (10.0, 0.01)
+    """
+    import scipy.linalg
+
+    M, C, K = (np.asarray(a, float) for a in (M, C, K))
+    n = M.shape[0]
     mi = np.linalg.inv(M)
-    A = np.block([[np.zeros((n_dof, n_dof)), np.eye(n_dof)], [-mi @ K, -mi @ C]])
+    A = np.block([[np.zeros((n, n)), np.eye(n)], [-mi @ K, -mi @ C]])
     lam, wl, vr = scipy.linalg.eig(A, left=True, right=True)
     keep = lam.imag > 0
     lam, wl, vr = lam[keep], wl[:, keep], vr[:, keep]
     order = np.argsort(np.abs(lam))
-    return ChainModel(M, C, K, lam[order], vr[:, order], wl[:, order],
-                      extra={"rayleigh": (a, b)})
+    return ChainModel(M, C, K, lam[order], vr[:, order], wl[:, order])
 
 
 def _modal_coordinate(lam: np.ndarray, t: np.ndarray, tc: float) -> np.ndarray:
