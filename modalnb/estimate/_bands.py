@@ -218,21 +218,28 @@ def _mean_limit(blk: int, c: float) -> float:
     return hi
 
 
-def _pencil_length(sig: np.ndarray, fs_b: float) -> int:
-    """Samples of the band signal that hold the ring-down: until the envelope (RMS in 32
-    blocks) falls to twice the floor of the last blocks, at most :data:`PENCIL_MAX_S`."""
-    n = sig.shape[1]
-    cap = min(n, int(PENCIL_MAX_S * fs_b))
-    nb = 32
-    blk = n // nb
-    if blk < 8:
-        return cap
+def _last_ringing_block(sig: np.ndarray, nb: int = 32) -> tuple[int, int]:
+    """Block length and index of the last of `nb` blocks whose energy is above four times
+    the floor (the median of the quietest quarter: twice its RMS); -1 when none is."""
+    blk = sig.shape[1] // nb
+    if blk < 1:
+        return blk, -1
     e = np.sum(sig[:, : blk * nb].reshape(sig.shape[0], nb, blk) ** 2, axis=(0, 2))
     floor = float(np.median(np.sort(e)[: max(nb // 4, 1)]))
     above = np.nonzero(e > 4.0 * floor)[0]
-    if above.size == 0:
+    return blk, int(above[-1]) if above.size else -1
+
+
+def _pencil_length(sig: np.ndarray, fs_b: float) -> int:
+    """Samples of the band signal that hold the ring-down: until the envelope (RMS in 32
+    blocks) falls to twice the floor of the last blocks, at most :data:`PENCIL_MAX_S`."""
+    cap = min(sig.shape[1], int(PENCIL_MAX_S * fs_b))
+    blk, last = _last_ringing_block(sig)
+    if blk < 8:
+        return cap
+    if last < 0:
         return min(cap, 8 * blk)
-    return int(min(cap, max((above[-1] + 2) * blk, 8 * blk, 256)))
+    return int(min(cap, max((last + 2) * blk, 8 * blk, 256)))
 
 
 def _compress_centred(y: np.ndarray, r: int) -> np.ndarray:
@@ -252,16 +259,10 @@ def _decay_length(sig: np.ndarray) -> int:
     noise floor (twice the floor's RMS), plus two blocks: later samples hold noise only
     and add nothing to the poles but cost."""
     n = sig.shape[1]
-    nb = 32
-    blk = n // nb
-    if blk < 64:
+    blk, last = _last_ringing_block(sig)
+    if blk < 64 or last < 0:
         return n
-    e = np.sum(sig[:, : blk * nb].reshape(sig.shape[0], nb, blk) ** 2, axis=(0, 2))
-    floor = float(np.median(np.sort(e)[: max(nb // 4, 1)]))
-    above = np.nonzero(e > 4.0 * floor)[0]
-    if above.size == 0:
-        return n
-    return int(min(n, max((above[-1] + 3) * blk, 8 * blk)))
+    return int(min(n, max((last + 3) * blk, 8 * blk)))
 
 
 def _to_band(sigma: float, u: float, shift_hz: float) -> tuple[float, float]:
