@@ -105,14 +105,37 @@ def _mac(a: np.ndarray, b: np.ndarray) -> float:
 
 
 def _energies(sig: np.ndarray, z: np.ndarray) -> tuple[np.ndarray, float]:
-    """Energy of each pole (summed over signals) and residual variance per sample."""
+    """Energy of each pole (summed over signals) and residual variance per sample.
+
+    The amplitudes are the least-squares fit of the signals on the Vandermonde basis
+    ``z_k^n``. The basis is built by running products (one multiplication per entry,
+    the poles have ``|z| < 1``: no overflow) and solved by a Householder QR; when the
+    triangular factor is near singular (two poles of an over-specified order nearly
+    coincide) the SVD-based minimum-norm solution (``numpy.linalg.lstsq``) is used, as
+    before, so the energies keep their meaning.
+    """
     n = sig.shape[-1]
-    nn = np.arange(n)
-    with np.errstate(over="ignore", invalid="ignore", under="ignore"):
-        vand = np.power(z[None, :], nn[:, None])
-    vand = np.where(np.isfinite(vand), vand, 0.0)
-    coef, *_ = np.linalg.lstsq(vand, sig.T, rcond=None)
-    resid = sig.T - vand @ coef
+    m = z.size
+    vand = np.empty((n, m), complex)
+    if n:
+        vand[0] = 1.0
+    if n > 1 and m:
+        with np.errstate(over="ignore", invalid="ignore", under="ignore"):
+            vand[1:] = z[None, :]
+            np.cumprod(vand[1:], axis=0, out=vand[1:])
+        vand = np.where(np.isfinite(vand), vand, 0.0)
+    rhs = sig.T
+    coef = None
+    if m and n >= m:
+        q, r = np.linalg.qr(vand)
+        dr = np.abs(np.diag(r))
+        if dr.min() > 1e-10 * dr.max():
+            from scipy.linalg import solve_triangular
+
+            coef = solve_triangular(r, q.conj().T @ rhs, check_finite=False)
+    if coef is None:
+        coef, *_ = np.linalg.lstsq(vand, rhs, rcond=None)
+    resid = rhs - vand @ coef
     dof = max(sig.size - coef.size, 1)
     var = float(np.sum(np.abs(resid) ** 2) / dof)
     zmag2 = np.abs(z) ** 2
@@ -175,9 +198,11 @@ def _sweep(
                              and abs(pz[j] - zeta[i]) <= 0.05 * max(zeta[i], 1e-4))
         # pole energies only where the chart needs them (an order with a stable pole)
         signif = np.full(lam.size, np.nan)
+        last = None
         if stable.any():
             e_m, v_m = _energies(sig, np.exp((lam - 1j * TWO_PI * shift_hz) * dt))
             signif = e_m / max(v_m, 1e-300)
+            last = (e_m, v_m)
         for lk, f, zz, st, sg, mc in zip(lam, fn, zeta, stable, signif, mac, strict=True):
             out.rows.append((pass_id, m, float(lk.imag / TWO_PI), float(f), float(zz), bool(st),
                              float(sg), float(mc)))
@@ -188,8 +213,10 @@ def _sweep(
     top = per_order[-1]
     if top.size == 0:
         return
-    ztop = np.exp((top - 1j * TWO_PI * shift_hz) * dt)
-    energy, var = _energies(sig, ztop)
+    if last is not None:  # the top order's energies, computed in the sweep
+        energy, var = last
+    else:
+        energy, var = _energies(sig, np.exp((top - 1j * TWO_PI * shift_hz) * dt))
     var = max(var, 1e-300)
     for i, lk in enumerate(top):
         hits = 0
