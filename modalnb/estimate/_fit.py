@@ -616,10 +616,15 @@ class SharedPoleFit:
             return scatter_banded(prep, core, weight, self._choices(prep.fs)[0])
         t_rel = prep.t_win - prep.t_win[0]
         fns, zs = [], []
+        first: Problem | None = None
         for i in range(n_hit):
             d = prep.data[i][prep.live] * weight[prep.live][:, None]
             d = compress(d, min(d.shape[0], core.x.size + 4))
             prob = Problem(np.ascontiguousarray(d.T), t_rel, core.prob.w_scale, core.prob.n_extra)
+            if first is None:
+                first = prob
+            else:  # the basis and its derivatives at the shared poles: computed once
+                prob.share_factors(first)
             x = one_step(prob, core.x)
             fn, z, _, _ = natural_with_cov(prob, x, np.zeros((x.size, x.size)))
             fns.append(fn)
