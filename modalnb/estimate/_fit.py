@@ -273,13 +273,27 @@ def _blas_limit(n: int | None) -> Iterator[None]:
 
 
 # ---------------------------------------------------------------- table steps
+def _lsq_at_poles(core: CoreResult, rhs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``(Phi, coefficients)``: least squares of `rhs` (N, K) on the basis at the final
+    poles, through the basis's QR (the fit's own factorisation, computed once for the
+    table's steps); the SVD-based ``lstsq`` where the basis is not finite or near rank
+    deficient (its minimum-norm solution)."""
+    phi, q, rr = core.prob._factor(core.x)
+    if q is not None:
+        dr = np.abs(np.diag(rr))
+        if dr.size and dr.min() > 1e-10 * dr.max():
+            from scipy.linalg import solve_triangular
+
+            return phi, solve_triangular(rr, q.T @ rhs, check_finite=False)
+    return phi, np.linalg.lstsq(phi, rhs, rcond=None)[0]
+
+
 def _residue_fit(prep: _Prepared, core: CoreResult) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Linear coefficients of every signal (unweighted data, least squares at the final
     poles), R^2 per channel and the residual RMS per channel."""
     n_hit_acc, n_ch, n = prep.data.shape
-    phi = core.prob.basis(core.x)
     flat = prep.data.transpose(2, 0, 1).reshape(n, -1)
-    coef, *_ = np.linalg.lstsq(phi, flat, rcond=None)
+    phi, coef = _lsq_at_poles(core, flat)
     fitted = (phi @ coef).reshape(n, n_hit_acc, n_ch)
     resid = flat.reshape(n, n_hit_acc, n_ch) - fitted
     dm = flat.reshape(n, n_hit_acc, n_ch)
@@ -298,9 +312,8 @@ def _fit_quality(prep: _Prepared, core: CoreResult, resid_rms: np.ndarray
     ratio = np.full(prep.live.size, np.nan)
     if noise_known:
         ratio[prep.live] = resid_rms[prep.live] * prep.weight[prep.live]
-    phi = core.prob.basis(core.x)
     d = core.prob.data_t
-    c, *_ = np.linalg.lstsq(phi, d, rcond=None)
+    phi, c = _lsq_at_poles(core, d)
     quality = fit_quality(ratio[prep.live], noise_known, d - phi @ c)
     return ratio, quality
 
