@@ -51,16 +51,37 @@ class PencilOutput:
         default_factory=list)
 
 
-def _signal_space(sig: np.ndarray, k_rows: int, n_vec: int) -> tuple[np.ndarray, np.ndarray]:
-    """Leading left singular vectors (k_rows, n_vec) and singular values of stacked Hankels."""
+def _hankel_gram(sig: np.ndarray, k_rows: int) -> np.ndarray:
+    """``sum_p H_p H_p^H`` of the (k_rows, n - k_rows + 1) Hankel matrices of the rows.
+
+    Hankel structure: ``G[i+1, j+1] = G[i, j] + sum_p (x_p[i+L] x_p[j+L]^* - x_p[i] x_p[j]^*)``
+    with ``L`` the column count, so the first column (``O(k L P)``) and one rank-P update
+    per diagonal replace the ``O(k^2 L P)`` product.
+    """
+    p, n = sig.shape
+    n_cols = n - k_rows + 1
     from numpy.lib.stride_tricks import sliding_window_view
 
-    n = sig.shape[-1]
-    n_cols = n - k_rows + 1
-    gram = np.zeros((k_rows, k_rows), dtype=sig.dtype)
+    gram = np.zeros((k_rows, k_rows), dtype=np.result_type(sig.dtype, np.complex128))
+    # first column: G[i, 0] = sum_p sum_l x_p[i + l] x_p[l]^*
     for row in sig:
-        h = sliding_window_view(row, n_cols)  # (k_rows, n_cols), h[i, j] = row[i + j]
-        gram += h @ h.conj().T
+        gram[:, 0] += sliding_window_view(row, n_cols) @ row[:n_cols].conj()
+    if k_rows > 1:
+        xs = sig[:, : k_rows - 1]
+        xe = sig[:, n_cols : n_cols + k_rows - 1]
+        upd = xe.T @ xe.conj() - xs.T @ xs.conj()  # (k-1, k-1), upd[i, j] for G[i+1, j+1]
+        for d in range(k_rows - 1):
+            t = np.arange(k_rows - 1 - d)
+            gram[d + 1 + t, 1 + t] = gram[d, 0] + np.cumsum(upd[d + t, t])
+        low = np.tril_indices(k_rows, -1)
+        gram[low[1], low[0]] = gram[low].conj()
+    gram[np.diag_indices(k_rows)] = gram.diagonal().real
+    return gram if np.iscomplexobj(sig) else gram.real
+
+
+def _signal_space(sig: np.ndarray, k_rows: int, n_vec: int) -> tuple[np.ndarray, np.ndarray]:
+    """Leading left singular vectors (k_rows, n_vec) and singular values of stacked Hankels."""
+    gram = _hankel_gram(sig, k_rows)
     w, v = np.linalg.eigh(gram)
     order = np.argsort(w)[::-1]
     w = np.clip(w[order], 0.0, None)
