@@ -209,14 +209,13 @@ def _sweep(
         # its shape MAC with that pole is kept beside (the chart's shape criterion)
         stable = np.zeros(lam.size, bool)
         mac = np.full(lam.size, np.nan)
-        if prev is not None and prev.size:
+        if prev is not None and prev.size and lam.size:
             pfn, pz = _natural(prev)
-            for i in range(lam.size):
-                j = int(np.argmin(np.abs(pfn - fn[i])))
-                if abs(pfn[j] - fn[i]) <= 0.01 * fn[i]:
-                    mac[i] = _mac(shape[i], prev_shape[j])
-                stable[i] = (abs(pfn[j] - fn[i]) <= 0.01 * fn[i]
-                             and abs(pz[j] - zeta[i]) <= 0.05 * max(zeta[i], 1e-4))
+            j = np.argmin(np.abs(pfn[None, :] - fn[:, None]), axis=1)
+            close = np.abs(pfn[j] - fn) <= 0.01 * fn
+            stable = close & (np.abs(pz[j] - zeta) <= 0.05 * np.maximum(zeta, 1e-4))
+            for i in np.nonzero(close)[0]:
+                mac[i] = _mac(shape[i], prev_shape[j[i]])
         # pole energies only where the chart needs them (an order with a stable pole)
         signif = np.full(lam.size, np.nan)
         last = None
