@@ -47,6 +47,13 @@ MAX_PRUNE_ROUNDS = 12
 #: converged around it, so no round spends long on a model it will change.
 ROUND_ITER = 12
 
+#: The first round of a warm start (refit from the previous poles) is shorter: from the
+#: previous optimum a well-determined model converges in one to four iterations, so a
+#: round still running after this many is usually iterating on a mode the new window
+#: no longer determines; the look at the modes drops it before LM spends a full round on
+#: it (a model that passes the look just iterates on, at the cost of one look).
+WARM_ROUND_ITER = 4
+
 #: Most iterations on one set of modes, and over the whole prune loop: the loop's cost is
 #: bounded whatever the data (a misfit window that drops one mode per round ends after at
 #: most this many normal-matrix builds); a fit stopped by a budget says so in
@@ -252,12 +259,14 @@ def fit_core(
     total_iter = 0
     rounds = 0
     converged = False
+    warm = pencil is None
     while True:
         rounds += 1
         # a look at the modes every ROUND_ITER iterations (early rounds only need to
         # separate real modes from spurious ones); iterations are bounded per model and
         # over the whole loop
-        budget = min(ROUND_ITER, MAX_MODEL_ITER - model_iter, MAX_TOTAL_ITER - total_iter)
+        round_iter = WARM_ROUND_ITER if warm and rounds == 1 else ROUND_ITER
+        budget = min(round_iter, MAX_MODEL_ITER - model_iter, MAX_TOTAL_ITER - total_iter)
         x, its = levenberg_marquardt(prob, x, max_iter=max(budget, 0))
         model_iter += its
         total_iter += its

@@ -273,6 +273,21 @@ def _blas_limit(n: int | None) -> Iterator[None]:
 
 
 # ---------------------------------------------------------------- table steps
+def _lsq_at_poles(core: CoreResult, rhs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``(Phi, coefficients)``: least squares of `rhs` (N, K) on the basis at the final
+    poles, through the basis's QR (the fit's own factorisation, computed once for the
+    table's steps); the SVD-based ``lstsq`` where the basis is not finite or near rank
+    deficient (its minimum-norm solution)."""
+    phi, q, rr = core.prob._factor(core.x)
+    if q is not None:
+        dr = np.abs(np.diag(rr))
+        if dr.size and dr.min() > 1e-10 * dr.max():
+            from scipy.linalg import solve_triangular
+
+            return phi, solve_triangular(rr, q.T @ rhs, check_finite=False)
+    return phi, np.linalg.lstsq(phi, rhs, rcond=None)[0]
+
+
 def _residue_fit(prep: _Prepared, core: CoreResult) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Linear coefficients of every signal (unweighted data, least squares at the final
     poles), R^2 per channel and the residual RMS per channel.
@@ -283,10 +298,9 @@ def _residue_fit(prep: _Prepared, core: CoreResult) -> tuple[np.ndarray, np.ndar
     back to a minimum-norm least squares over all signals at once.
     """
     n_hit_acc, n_ch, n = prep.data.shape
-    phi = core.prob.basis(core.x)
-    q, rr = np.linalg.qr(phi)
-    d = np.abs(np.diag(rr))
-    if d.size == 0 or d.min() <= 1e-10 * d.max():
+    phi, q, rr = core.prob._factor(core.x)  # the fit's own QR of the basis
+    dr = np.abs(np.diag(rr)) if q is not None else np.zeros(0)
+    if dr.size == 0 or dr.min() <= 1e-10 * dr.max():
         return _residue_fit_lstsq(prep, phi)
     from scipy.linalg import solve_triangular
 
@@ -295,7 +309,7 @@ def _residue_fit(prep: _Prepared, core: CoreResult) -> tuple[np.ndarray, np.ndar
     for c in range(n_ch):
         blk = prep.data[:, c, :].T  # (n, hits)
         proj = q.T @ blk
-        coef[:, c::n_ch] = solve_triangular(rr, proj)
+        coef[:, c::n_ch] = solve_triangular(rr, proj, check_finite=False)
         # R^2 = 1 - (RMS residual / RMS signal)^2: a ratio of scale-safe RMS values
         r_res[c] = rms(blk - q @ proj)
         r_sig[c] = rms(blk - blk.mean(axis=0, keepdims=True))
@@ -325,9 +339,8 @@ def _fit_quality(prep: _Prepared, core: CoreResult, resid_rms: np.ndarray
     ratio = np.full(prep.live.size, np.nan)
     if noise_known:
         ratio[prep.live] = resid_rms[prep.live] * prep.weight[prep.live]
-    phi = core.prob.basis(core.x)
     d = core.prob.data_t
-    c, *_ = np.linalg.lstsq(phi, d, rcond=None)
+    phi, c = _lsq_at_poles(core, d)
     quality = fit_quality(ratio[prep.live], noise_known, d - phi @ c)
     return ratio, quality
 
@@ -643,10 +656,15 @@ class SharedPoleFit:
             return scatter_banded(prep, core, weight, self._choices(prep.fs)[0])
         t_rel = prep.t_win - prep.t_win[0]
         fns, zs = [], []
+        first: Problem | None = None
         for i in range(n_hit):
             d = prep.data[i][prep.live] * weight[prep.live][:, None]
             d = compress(d, min(d.shape[0], core.x.size + 4))
             prob = Problem(np.ascontiguousarray(d.T), t_rel, core.prob.w_scale, core.prob.n_extra)
+            if first is None:
+                first = prob
+            else:  # the basis and its derivatives at the shared poles: computed once
+                prob.share_factors(first)
             x = one_step(prob, core.x)
             fn, z, _, _ = natural_with_cov(prob, x, np.zeros((x.size, x.size)))
             fns.append(fn)

@@ -51,16 +51,37 @@ class PencilOutput:
         default_factory=list)
 
 
-def _signal_space(sig: np.ndarray, k_rows: int, n_vec: int) -> tuple[np.ndarray, np.ndarray]:
-    """Leading left singular vectors (k_rows, n_vec) and singular values of stacked Hankels."""
+def _hankel_gram(sig: np.ndarray, k_rows: int) -> np.ndarray:
+    """``sum_p H_p H_p^H`` of the (k_rows, n - k_rows + 1) Hankel matrices of the rows.
+
+    Hankel structure: ``G[i+1, j+1] = G[i, j] + sum_p (x_p[i+L] x_p[j+L]^* - x_p[i] x_p[j]^*)``
+    with ``L`` the column count, so the first column (``O(k L P)``) and one rank-P update
+    per diagonal replace the ``O(k^2 L P)`` product.
+    """
+    p, n = sig.shape
+    n_cols = n - k_rows + 1
     from numpy.lib.stride_tricks import sliding_window_view
 
-    n = sig.shape[-1]
-    n_cols = n - k_rows + 1
-    gram = np.zeros((k_rows, k_rows), dtype=sig.dtype)
+    gram = np.zeros((k_rows, k_rows), dtype=np.result_type(sig.dtype, np.complex128))
+    # first column: G[i, 0] = sum_p sum_l x_p[i + l] x_p[l]^*
     for row in sig:
-        h = sliding_window_view(row, n_cols)  # (k_rows, n_cols), h[i, j] = row[i + j]
-        gram += h @ h.conj().T
+        gram[:, 0] += sliding_window_view(row, n_cols) @ row[:n_cols].conj()
+    if k_rows > 1:
+        xs = sig[:, : k_rows - 1]
+        xe = sig[:, n_cols : n_cols + k_rows - 1]
+        upd = xe.T @ xe.conj() - xs.T @ xs.conj()  # (k-1, k-1), upd[i, j] for G[i+1, j+1]
+        for d in range(k_rows - 1):
+            t = np.arange(k_rows - 1 - d)
+            gram[d + 1 + t, 1 + t] = gram[d, 0] + np.cumsum(upd[d + t, t])
+        low = np.tril_indices(k_rows, -1)
+        gram[low[1], low[0]] = gram[low].conj()
+    gram[np.diag_indices(k_rows)] = gram.diagonal().real
+    return gram if np.iscomplexobj(sig) else gram.real
+
+
+def _signal_space(sig: np.ndarray, k_rows: int, n_vec: int) -> tuple[np.ndarray, np.ndarray]:
+    """Leading left singular vectors (k_rows, n_vec) and singular values of stacked Hankels."""
+    gram = _hankel_gram(sig, k_rows)
     w, v = np.linalg.eigh(gram)
     order = np.argsort(w)[::-1]
     w = np.clip(w[order], 0.0, None)
@@ -105,14 +126,37 @@ def _mac(a: np.ndarray, b: np.ndarray) -> float:
 
 
 def _energies(sig: np.ndarray, z: np.ndarray) -> tuple[np.ndarray, float]:
-    """Energy of each pole (summed over signals) and residual variance per sample."""
+    """Energy of each pole (summed over signals) and residual variance per sample.
+
+    The amplitudes are the least-squares fit of the signals on the Vandermonde basis
+    ``z_k^n``. The basis is built by running products (one multiplication per entry,
+    the poles have ``|z| < 1``: no overflow) and solved by a Householder QR; when the
+    triangular factor is near singular (two poles of an over-specified order nearly
+    coincide) the SVD-based minimum-norm solution (``numpy.linalg.lstsq``) is used, as
+    before, so the energies keep their meaning.
+    """
     n = sig.shape[-1]
-    nn = np.arange(n)
-    with np.errstate(over="ignore", invalid="ignore", under="ignore"):
-        vand = np.power(z[None, :], nn[:, None])
-    vand = np.where(np.isfinite(vand), vand, 0.0)
-    coef, *_ = np.linalg.lstsq(vand, sig.T, rcond=None)
-    resid = sig.T - vand @ coef
+    m = z.size
+    vand = np.empty((n, m), complex)
+    if n:
+        vand[0] = 1.0
+    if n > 1 and m:
+        with np.errstate(over="ignore", invalid="ignore", under="ignore"):
+            vand[1:] = z[None, :]
+            np.cumprod(vand[1:], axis=0, out=vand[1:])
+        vand = np.where(np.isfinite(vand), vand, 0.0)
+    rhs = sig.T
+    coef = None
+    if m and n >= m:
+        q, r = np.linalg.qr(vand)
+        dr = np.abs(np.diag(r))
+        if dr.min() > 1e-10 * dr.max():
+            from scipy.linalg import solve_triangular
+
+            coef = solve_triangular(r, q.conj().T @ rhs, check_finite=False)
+    if coef is None:
+        coef, *_ = np.linalg.lstsq(vand, rhs, rcond=None)
+    resid = rhs - vand @ coef
     dof = max(sig.size - coef.size, 1)
     var = float(np.sum(np.abs(resid) ** 2) / dof)
     zmag2 = np.abs(z) ** 2
@@ -165,19 +209,20 @@ def _sweep(
         # its shape MAC with that pole is kept beside (the chart's shape criterion)
         stable = np.zeros(lam.size, bool)
         mac = np.full(lam.size, np.nan)
-        if prev is not None and prev.size:
+        if prev is not None and prev.size and lam.size:
             pfn, pz = _natural(prev)
-            for i in range(lam.size):
-                j = int(np.argmin(np.abs(pfn - fn[i])))
-                if abs(pfn[j] - fn[i]) <= 0.01 * fn[i]:
-                    mac[i] = _mac(shape[i], prev_shape[j])
-                stable[i] = (abs(pfn[j] - fn[i]) <= 0.01 * fn[i]
-                             and abs(pz[j] - zeta[i]) <= 0.05 * max(zeta[i], 1e-4))
+            j = np.argmin(np.abs(pfn[None, :] - fn[:, None]), axis=1)
+            close = np.abs(pfn[j] - fn) <= 0.01 * fn
+            stable = close & (np.abs(pz[j] - zeta) <= 0.05 * np.maximum(zeta, 1e-4))
+            for i in np.nonzero(close)[0]:
+                mac[i] = _mac(shape[i], prev_shape[j[i]])
         # pole energies only where the chart needs them (an order with a stable pole)
         signif = np.full(lam.size, np.nan)
+        last = None
         if stable.any():
             e_m, v_m = _energies(sig, np.exp((lam - 1j * TWO_PI * shift_hz) * dt))
             signif = e_m / max(v_m, 1e-300)
+            last = (e_m, v_m)
         for lk, f, zz, st, sg, mc in zip(lam, fn, zeta, stable, signif, mac, strict=True):
             out.rows.append((pass_id, m, float(lk.imag / TWO_PI), float(f), float(zz), bool(st),
                              float(sg), float(mc)))
@@ -188,8 +233,10 @@ def _sweep(
     top = per_order[-1]
     if top.size == 0:
         return
-    ztop = np.exp((top - 1j * TWO_PI * shift_hz) * dt)
-    energy, var = _energies(sig, ztop)
+    if last is not None:  # the top order's energies, computed in the sweep
+        energy, var = last
+    else:
+        energy, var = _energies(sig, np.exp((top - 1j * TWO_PI * shift_hz) * dt))
     var = max(var, 1e-300)
     for i, lk in enumerate(top):
         hits = 0

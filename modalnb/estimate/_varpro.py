@@ -79,12 +79,30 @@ class Problem:
         r = self.data_t - q @ (q.T @ self.data_t)
         return r.ravel()
 
-    def _projection(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        """``(Q, Q^T d, coefficients, D)`` at `x`: the pieces of Kaufman's Jacobian.
+    def share_factors(self, other: Problem) -> None:
+        """Use the basis factorisation and derivative pieces `other` last computed.
 
-        ``D`` (N, 4M) holds, per mode, the derivatives of its two basis columns with respect
-        to sigma, then to u, in packed units.
+        They depend on the times and the parameters only, not on the signals, so problems
+        on the same times (the hits of one campaign, see ``_per_hit_scatter``) evaluated
+        at the same point need them once. `other` must have the same ``t``, ``w_scale``
+        and ``n_extra``.
         """
+        if not (other.t is self.t or np.array_equal(other.t, self.t)) or (
+                other.w_scale != self.w_scale or other.n_extra != self.n_extra):
+            raise ValueError("share_factors needs problems on the same times and scales")
+        for name in ("_cache", "_dcache"):
+            if hasattr(other, name):
+                setattr(self, name, getattr(other, name))
+
+    def _derivatives(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray,
+                                                   np.ndarray, np.ndarray]:
+        """``(Phi, Q, R, D, E)`` at `x`, ``E = (I - Q Q^T) D``: the signal-free pieces of
+        Kaufman's Jacobian, kept for the last point asked (``D`` as in :meth:`_projection`;
+        ``Q, R`` of a basis with non-finite entries are those of its finite part)."""
+        key = np.asarray(x, float).tobytes()
+        cache = getattr(self, "_dcache", None)
+        if cache is not None and cache[0] == key:
+            return cache[1]
         sigma, u = self.unpack(np.asarray(x, float))
         t = self.t
         phi, q, rr = self._factor(x)
@@ -92,11 +110,6 @@ class Problem:
             if q is None:
                 phi = np.nan_to_num(phi, nan=0.0, posinf=0.0, neginf=0.0)
                 q, rr = np.linalg.qr(phi)
-            qtd = q.T @ self.data_t
-            if np.all(np.abs(np.diag(rr)) > 0):
-                coef = np.linalg.solve(rr, qtd)
-            else:
-                coef = np.linalg.lstsq(phi, self.data_t, rcond=None)[0]
             m = sigma.size
             dmat = np.empty((t.size, 4 * m))
             # d/dsigma of exp(-sigma t) f(t) is -t exp(-sigma t) f(t)
@@ -105,7 +118,26 @@ class Problem:
             dmat4 = dmat.reshape(t.size, m, 4)
             dmat4[:, :, 0:2] = dsig.reshape(t.size, m, 2)
             dmat4[:, :, 2:4] = ddu.reshape(t.size, m, 2)
-        return q, qtd, coef, _finite_or_zero(dmat)
+            dmat = _finite_or_zero(dmat)
+            e = dmat - q @ (q.T @ dmat)
+        out = (phi, q, rr, dmat, e)
+        self._dcache = (key, out)
+        return out
+
+    def _projection(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """``(Q, Q^T d, coefficients, D)`` at `x`: the pieces of Kaufman's Jacobian.
+
+        ``D`` (N, 4M) holds, per mode, the derivatives of its two basis columns with respect
+        to sigma, then to u, in packed units.
+        """
+        phi, q, rr, dmat, _ = self._derivatives(x)
+        with np.errstate(over="ignore", invalid="ignore", under="ignore"):
+            qtd = q.T @ self.data_t
+            if np.all(np.abs(np.diag(rr)) > 0):
+                coef = np.linalg.solve(rr, qtd)
+            else:
+                coef = np.linalg.lstsq(phi, self.data_t, rcond=None)[0]
+        return q, qtd, coef, dmat
 
     def kaufman_jacobian(self, x: np.ndarray) -> np.ndarray:
         """Jacobian of the projected residual in Kaufman's (1975) form (N*P, n_params).
@@ -140,7 +172,7 @@ class Problem:
         with np.errstate(over="ignore", invalid="ignore"):
             # a trial point far out (a nearly growing mode) may overflow: such a point
             # gets a huge but finite normal matrix, so the step is simply refused
-            e = dmat - q @ (q.T @ dmat)
+            e = self._derivatives(x)[4]
             resid = (self.data_t - q @ qtd) if r is None else r.reshape(self.data_t.shape)
             cc = np.einsum("kap,lbp->kalb", cm, cm)  # C_k C_l^T
             ete = (e.T @ e).reshape(n, 2, n, 2)
