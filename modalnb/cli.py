@@ -49,6 +49,9 @@ def _check_out(out: Path) -> None:
         raise _BadOption(f"--out {out}: {ancestor} is a file, so the folder cannot be made there.")
     if not os.access(ancestor, os.W_OK | os.X_OK):
         raise _BadOption(f"--out {out}: cannot write in {ancestor} (no permission).")
+    from ._files import check_output_folder
+
+    check_output_folder(out)  # the writer's own rule (not the current folder, not a project)
 
 
 def _thresholds_from_args(values: Sequence[str] | None) -> dict[str, float | int]:
@@ -240,11 +243,9 @@ def _named(source: str) -> Iterator[None]:
 
 
 def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: str) -> Any:
-    from ._files import check_output_folder
     from .export import write_modal_table
     from .pipeline import run_recipe
 
-    check_output_folder(out)  # before the work: a folder that cannot be replaced is one line
     with _named(title.removeprefix("modalnb: ")), warnings.catch_warnings():
         # the CLI said it already, naming the recipe file (_recipe_from_args)
         from ._errors import OtherRecordsWarning
