@@ -52,7 +52,7 @@ from ._core import (
     _rss_increase,
     fit_core,
 )
-from ._pencil import TWO_PI, PencilOutput, find_poles, initial_modes
+from ._pencil import TWO_PI, PencilOutput, band_taper, find_poles, initial_modes
 from ._significance import significance_threshold
 from ._varpro import Problem, levenberg_marquardt, natural_with_cov
 
@@ -180,11 +180,7 @@ def _bands_of(spec: np.ndarray, nfft: int, n: int, fs: float, f_lo: float, f_hi:
         if idx.size < 8:
             continue
         f_sel = freqs[idx]
-        taper = np.ones(idx.size)
-        left = f_sel < lo
-        taper[left] = 0.5 - 0.5 * np.cos(np.pi * (f_sel[left] - (lo - margin)) / margin)
-        right = f_sel > hi
-        taper[right] = 0.5 - 0.5 * np.cos(np.pi * ((hi + margin) - f_sel[right]) / margin)
+        taper = band_taper(f_sel, lo, hi, margin)
         k_shift = max(int(idx[0]) - int(round(guard / df)), 0)
         pos_max = int(idx[-1]) - k_shift
         n_base = next_fast_len(2 * (pos_max + int(round(guard / df))) + 2)

@@ -250,6 +250,23 @@ def _sweep(
         out.candidates.append(Candidate(complex(lk), float(energy[i] / var), f"pass{pass_id}"))
 
 
+def band_taper(f: np.ndarray, lo: float, hi: float, margin: float) -> np.ndarray:
+    """Weights of the spectrum lines `f` for the band ``[lo, hi]``: 1 inside, a raised
+    cosine over `margin` on either side (a Tukey-shaped edge; common practice).
+
+    Examples
+    --------
+    >>> band_taper(np.array([0.5, 1.0, 2.0, 3.5]), 1.0, 3.0, 1.0).round(3).tolist()
+    [0.5, 1.0, 1.0, 0.5]
+    """
+    taper = np.ones(f.size)
+    left = f < lo
+    taper[left] = 0.5 - 0.5 * np.cos(np.pi * (f[left] - (lo - margin)) / margin)
+    right = f > hi
+    taper[right] = 0.5 - 0.5 * np.cos(np.pi * ((hi + margin) - f[right]) / margin)
+    return taper
+
+
 def find_poles(
     data: np.ndarray,
     fs: float,
@@ -298,11 +315,7 @@ def find_poles(
         if idx.size < 8:
             continue
         f_sel = freqs[idx]
-        taper = np.ones(idx.size)
-        left = f_sel < lo
-        taper[left] = 0.5 - 0.5 * np.cos(np.pi * (f_sel[left] - sel_lo) / margin)
-        right = f_sel > hi
-        taper[right] = 0.5 - 0.5 * np.cos(np.pi * (sel_hi - f_sel[right]) / margin)
+        taper = band_taper(f_sel, lo, hi, margin)
         n_base = int(np.ceil(1.25 * idx.size))
         base = np.zeros((p, n_base), complex)
         k_c = int(round(fc / df))
