@@ -15,6 +15,8 @@ Headless core (never imports ipywidgets or plotly):
   :func:`run_recipe` (a reproducible replay), :func:`write_modal_table`
 * test campaigns: :func:`fit_campaign` (many record sets, one recipe, modes tracked; dask)
 * the notebook state: :class:`Analysis` (headless; the widgets are views over it)
+* numbers shown to people: :func:`format_with_uncertainty` (GUM 7.2.6 rounding),
+  :func:`format_quantity` (times, dB, frequencies, damping, ... with sensible digits)
 * errors: :class:`ModalnbError` and its subclasses :class:`RecordError`,
   :class:`RecordFileNotFoundError`, :class:`EstimationError`, :class:`RecipeError`,
   :class:`RecipeFileNotFoundError`, :class:`OptionError`; warnings derive from
@@ -38,6 +40,7 @@ from ._errors import (
     RecordError,
     RecordFileNotFoundError,
 )
+from ._numbers import format_quantity, format_with_uncertainty
 from .campaign import fit_campaign
 from .checks import check_hits, format_hit_report
 from .estimate import cross_checks, mac, mac_matrix, modal_conversions, mpc
@@ -89,6 +92,9 @@ __all__ = (
     "save_recipe",
     # the notebook state
     "Analysis",
+    # numbers shown to people
+    "format_with_uncertainty",
+    "format_quantity",
     # errors
     "ModalnbError",
     "RecordError",
