@@ -54,7 +54,10 @@ Where the code is
 * :mod:`modalnb.demo._campaign` -- the campaign writer: hits, noise, double hit,
   clipping, ADC, the record set and the truth;
 * :mod:`modalnb.demo._store` -- the files (write, load) and the command line;
-* :mod:`modalnb.demo._settings` -- :class:`DemoSettings`, every number the generator uses.
+* :mod:`modalnb.demo._settings` -- :class:`DemoSettings`, every number the generator uses;
+* :mod:`modalnb.demo._frame` -- the roving-hammer demo (a welded portal frame of
+  Euler-Bernoulli frame elements, 75 hits over 25 nodes, two fixed accelerometers; its
+  ``scipy.linalg.eigh`` truth): :func:`roving_campaign`, :func:`write_roving_demo`.
 
 Reproducibility
 ---------------
@@ -83,6 +86,18 @@ Truth conventions
 """
 
 from ._campaign import DemoRun, demo_truth, make_demo_campaign, time_axis
+from ._frame import (
+    FRAME_SETTINGS,
+    ROVING_FILES,
+    ROVING_SEED,
+    FrameModel,
+    FrameSettings,
+    beam_line_model,
+    frame_element,
+    frame_model,
+    roving_campaign,
+    write_roving_demo,
+)
 from ._model import (
     HANDBOOK_CANTILEVER_BETA_L,
     BoomModel,
@@ -135,4 +150,14 @@ __all__ = [
     "bracket_model",
     "lumped_model",
     "lumped_records",
+    "FrameSettings",
+    "FRAME_SETTINGS",
+    "FrameModel",
+    "frame_model",
+    "frame_element",
+    "beam_line_model",
+    "roving_campaign",
+    "write_roving_demo",
+    "ROVING_SEED",
+    "ROVING_FILES",
 ]
