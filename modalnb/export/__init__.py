@@ -24,6 +24,10 @@ Files written by :func:`write_modal_table` (the contract other tools rely on):
 
 :func:`write_frf` (:mod:`.frf_file`) writes an FRF Dataset as ``frf.nc`` (``frf_real``,
 ``frf_imag``, ``coherence``, ...).
+
+:func:`write_shape_views` (:mod:`.shape_view`) writes ``shape_view.html``, the moving shape
+view on the structure's geometry; :func:`shape_section_html` is the same view as one HTML
+fragment for a report page.
 """
 
 from __future__ import annotations
@@ -39,6 +43,7 @@ from ._rows import (
 )
 from .frf_file import write_frf
 from .report import report_html, write_report
+from .shape_view import shape_section_html, shape_view_html, write_shape_views
 from .table_files import write_modal_table
 from .terminal import format_modal_table
 
@@ -55,4 +60,7 @@ __all__ = [
     "write_report",
     "report_html",
     "write_frf",
+    "shape_view_html",
+    "shape_section_html",
+    "write_shape_views",
 ]
