@@ -50,16 +50,18 @@ FRAMES_PER_CYCLE = 24
 #: Largest amplitude of the page's control, times the default scale.
 MAX_AMPLITUDE = 3.0
 
-_TRACE_DEFORMED_LINES = 2
-_TRACE_DEFORMED_NODES = 3
+#: Trace order of :func:`base_traces`: the deformed lines and nodes (what moves).
+TRACE_DEFORMED_LINES = 2
+TRACE_DEFORMED_NODES = 3
 
 
 def _e(x: Any) -> str:
     return html.escape(str(x), quote=True)
 
 
-def _segments(g: Geometry, pos: np.ndarray) -> tuple[list[Any], list[Any], list[Any]]:
-    """Line coordinates with ``None`` between lines (one trace for every line)."""
+def line_coordinates(g: Geometry, pos: np.ndarray) -> tuple[list[Any], list[Any], list[Any]]:
+    """Line coordinates at positions `pos` with ``None`` between lines (one trace for every
+    line; also used by the modal-table panel's moving view)."""
     xs: list[Any] = []
     ys: list[Any] = []
     zs: list[Any] = []
@@ -86,7 +88,7 @@ def _mode_label(table: xr.Dataset, mode: int) -> str:
     return f"mode {mode} · {format_quantity(f, 'frequency_hz')}"
 
 
-def _camera(g: Geometry) -> dict[str, Any]:
+def scene_camera(g: Geometry) -> dict[str, Any]:
     """Look at a flat structure face on (along its thinnest axis, a little from above and
     the side); else plotly's usual three-quarter view."""
     size = np.ptp(g.xyz, axis=0) if len(g.nodes) else np.ones(3)
@@ -100,7 +102,7 @@ def _camera(g: Geometry) -> dict[str, Any]:
     return {"eye": {"x": float(eye[0]), "y": float(eye[1]), "z": float(eye[2])}}
 
 
-def _ranges(g: Geometry, reach: np.ndarray) -> tuple[dict[str, Any], dict[str, float]]:
+def scene_ranges(g: Geometry, reach: np.ndarray) -> tuple[dict[str, Any], dict[str, float]]:
     """Fixed axis ranges (the view does not jump while the shape moves): the nodes plus the
     largest motion along each axis (at least 5 % of the span), equal metres per axis."""
     reach = np.maximum(np.asarray(reach, float) * np.ones(3), 0.05 * g.span)
@@ -113,12 +115,14 @@ def _ranges(g: Geometry, reach: np.ndarray) -> tuple[dict[str, Any], dict[str, f
     return axes, {c: float(ratio[i]) for i, c in enumerate("xyz")}
 
 
-def _base_traces(g: Geometry, measured: np.ndarray, pos: np.ndarray) -> list[Any]:
+def base_traces(g: Geometry, measured: np.ndarray, pos: np.ndarray) -> list[Any]:
+    """The view's four traces (undeformed lines, still nodes, deformed lines, deformed nodes),
+    shared with the modal-table panel so the notebook and the page look alike."""
     import plotly.graph_objects as go
 
     labels = [_e(n) for n in g.nodes]
-    ux, uy, uz = _segments(g, g.xyz)
-    dx, dy, dz = _segments(g, pos)
+    ux, uy, uz = line_coordinates(g, g.xyz)
+    dx, dy, dz = line_coordinates(g, pos)
     still = ~measured
     return [
         go.Scatter3d(x=ux, y=uy, z=uz, mode="lines", name="undeformed", hoverinfo="skip",
@@ -182,20 +186,20 @@ def shape_view_figure(table: xr.Dataset, mode: int, *, geometry: Geometry | None
     g = _prepare(table, records, geometry)
     motion, measured = node_motion(g, table, mode)
     s = default_scale(g, motion) if scale is None else float(scale)
-    axes, ratio = _ranges(g, s * np.max(np.abs(motion), axis=0, initial=0.0))
+    axes, ratio = scene_ranges(g, s * np.max(np.abs(motion), axis=0, initial=0.0))
     phases = 2 * np.pi * np.arange(n_frames) / n_frames
     frames = []
     for k, th in enumerate(phases):
         pos = g.xyz + s * (motion * np.exp(1j * th)).real
-        dx, dy, dz = _segments(g, pos)
-        frames.append(go.Frame(name=f"{k}", traces=[_TRACE_DEFORMED_LINES, _TRACE_DEFORMED_NODES], data=[
+        dx, dy, dz = line_coordinates(g, pos)
+        frames.append(go.Frame(name=f"{k}", traces=[TRACE_DEFORMED_LINES, TRACE_DEFORMED_NODES], data=[
             go.Scatter3d(x=dx, y=dy, z=dz),
             go.Scatter3d(x=pos[measured, 0], y=pos[measured, 1], z=pos[measured, 2])]))
-    fig = go.Figure(data=_base_traces(g, measured, g.xyz + s * motion.real), frames=frames)
+    fig = go.Figure(data=base_traces(g, measured, g.xyz + s * motion.real), frames=frames)
     step = {"frame": {"duration": 60, "redraw": True}, "transition": {"duration": 0}, "mode": "immediate"}
     fig.update_layout(
         title=_e(_mode_label(table, mode)), height=520, margin={"l": 0, "r": 0, "t": 40, "b": 0},
-        scene={**axes, "aspectmode": "manual", "aspectratio": ratio, "camera": _camera(g)},
+        scene={**axes, "aspectmode": "manual", "aspectratio": ratio, "camera": scene_camera(g)},
         legend={"orientation": "h"},
         updatemenus=[{"type": "buttons", "showactive": False, "x": 0.0, "y": 0.0, "xanchor": "left",
                       "buttons": [{"label": "play", "method": "animate", "args": [None, {**step, "fromcurrent": True}]},
@@ -293,10 +297,10 @@ def _section(g: Geometry, table: xr.Dataset, modes: list[int], include_plotlyjs:
         return np.max(mo, axis=0, initial=0.0) * float(m["scale"])
 
     reach = MAX_AMPLITUDE * np.max([peak(m) for m in data["modes"]], axis=0)
-    axes, ratio = _ranges(g, reach)
-    fig = go.Figure(data=_base_traces(g, measured, g.xyz + first["scale"] * motion.real))
+    axes, ratio = scene_ranges(g, reach)
+    fig = go.Figure(data=base_traces(g, measured, g.xyz + first["scale"] * motion.real))
     fig.update_layout(title=_e(first["label"]), height=540, margin={"l": 0, "r": 0, "t": 40, "b": 0},
-                      scene={**axes, "aspectmode": "manual", "aspectratio": ratio, "camera": _camera(g)},
+                      scene={**axes, "aspectmode": "manual", "aspectratio": ratio, "camera": scene_camera(g)},
                       legend={"orientation": "h"}, uirevision="keep")
     plot = fig.to_html(full_html=False, include_plotlyjs=include_plotlyjs, div_id=div_id,
                        config={"displaylogo": False})
@@ -305,7 +309,7 @@ def _section(g: Geometry, table: xr.Dataset, modes: list[int], include_plotlyjs:
               f"straight line (no position given): {_e(', '.join(g.placed))}.</p>" if g.placed else "")
     js = (_PLAYER_JS.replace("__DATA__", json.dumps(data).replace("</", "<\\/"))
           .replace("__ID__", div_id).replace("__FRAMES__", str(FRAMES_PER_CYCLE))
-          .replace("__LINES__", str(_TRACE_DEFORMED_LINES)).replace("__NODES__", str(_TRACE_DEFORMED_NODES)))
+          .replace("__LINES__", str(TRACE_DEFORMED_LINES)).replace("__NODES__", str(TRACE_DEFORMED_NODES)))
     return (
         f'<section class="modalnb-shape-view" id="{div_id}-box" data-ready="no">'
         "<h2>Mode shapes on the structure</h2>"

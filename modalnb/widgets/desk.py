@@ -9,6 +9,7 @@ from typing import Any
 import ipywidgets as w
 import xarray as xr
 
+from ..geometry import Geometry
 from ..recipe import Recipe
 from ..session import Analysis
 from ._base import Panel, esc
@@ -37,9 +38,10 @@ class Desk:
         The panels, by their ``key`` (each also usable alone).
     """
 
-    def __init__(self, analysis: Analysis, *, out_dir: str | Path | None = None) -> None:
+    def __init__(self, analysis: Analysis, *, out_dir: str | Path | None = None,
+                 geometry: Geometry | None = None) -> None:
         self.analysis = analysis
-        self._options: dict[str, Any] = {"out_dir": out_dir}
+        self._options: dict[str, Any] = {"out_dir": out_dir, "geometry": geometry}
         self._built: dict[str, Panel] = {}
         self._boxes = [w.VBox([w.HTML("<i>opening…</i>")], layout=w.Layout(width="100%"))
                        for _ in PANELS]
@@ -98,6 +100,7 @@ def analysis_desk(
     *,
     recipe_path: str | os.PathLike[str] | None = None,
     out_dir: str | Path | None = None,
+    geometry: Geometry | None = None,
 ) -> Desk:
     """Open an analysis (or take one) and show its panels in tabs.
 
@@ -112,6 +115,9 @@ def analysis_desk(
         Where the recipe is autosaved.
     out_dir : path, optional
         Default export folder of the table panel.
+    geometry : Geometry, optional
+        The structure's geometry table (:func:`modalnb.geometry.read_geometry`) for the
+        moving shape view; default the records' channel positions ``x, y, z``.
 
     Returns
     -------
@@ -130,4 +136,4 @@ def analysis_desk(
         analysis = Analysis(records, recipe, recipe_path=recipe_path)
     else:
         analysis = Analysis.open(records, recipe_path)
-    return Desk(analysis, out_dir=out_dir)
+    return Desk(analysis, out_dir=out_dir, geometry=geometry)

@@ -1,6 +1,7 @@
 """Panel 5, modal table: natural frequencies and damping ratios with their uncertainties,
-the poles set aside (residual terms, not modes) with their reasons, shapes, MAC between modes and between hits, the shape plot (3-D from the node coordinates
-when present), exports and "save recipe"."""
+the poles set aside (residual terms, not modes) with their reasons, shapes, MAC between
+modes and between hits, the moving shape view (on the user's geometry table, else the
+records' node coordinates; :mod:`.shape_motion`), exports and "save recipe"."""
 
 from __future__ import annotations
 
@@ -12,14 +13,12 @@ import numpy as np
 
 from .._display import PALETTE
 from ..export._aside import ASIDE_TITLE, aside_rows
+from ..geometry import Geometry
 from ..session import Analysis
 from ._base import Panel, esc, fig_box, figure, mode_rows, table_html
+from .shape_motion import ShapeMotion
 
 __all__ = ["TablePanel"]
-
-#: Shape arrows in the 3-D plot: the largest is this fraction of the sensor layout's span.
-SHAPE_SCALE = 0.25
-
 
 def _phase_text(deg: float) -> str:
     """Phase in whole degrees within (-180, 180]: -179.7 shows as +180, -0.2 as +0.
@@ -78,7 +77,8 @@ class TablePanel(Panel):
     css = "modalnb-table-panel"
     title = "Modal table"
 
-    def __init__(self, analysis: Analysis, out_dir: str | Path | None = None) -> None:
+    def __init__(self, analysis: Analysis, out_dir: str | Path | None = None,
+                 geometry: Geometry | None = None) -> None:
         super().__init__(analysis)
         a = analysis
         if out_dir is None:
@@ -97,7 +97,8 @@ class TablePanel(Panel):
         _mac_heatmap(self.mac_fig)
         self.hitmac_fig = figure(330, title="MAC between hits (per-hit residues)")
         _mac_heatmap(self.hitmac_fig)
-        self.shape_fig = figure(360, title="mode shape")
+        self.motion = ShapeMotion(geometry)
+        self.shape_fig = self.motion.fig
         self.out_dir = w.Text(value=str(out_dir), description="folder", layout=w.Layout(width="60%"))
         self.out_dir.add_class("modalnb-export-dir")
         self.b_table = w.Button(description="table: CSV, netCDF, JSON", layout=w.Layout(width="220px"))
@@ -117,16 +118,17 @@ class TablePanel(Panel):
             self.modes, self.aside, self.shapes,
             w.HBox([fig_box(self.mac_fig, "modalnb-mac-figure")]),
             self.mode, w.HBox([fig_box(self.hitmac_fig, "modalnb-hitmac-figure"),
-                               fig_box(self.shape_fig, "modalnb-shape-figure")]),
+                               self.motion.widget]),
             w.HBox([self.out_dir]), w.HBox([self.b_table, self.b_report, self.b_recipe]),
             self.export_status,
         ])
 
     @classmethod
     def for_desk(cls, analysis: Analysis, *, out_dir: str | Path | None = None,
-                 **_options: Any) -> TablePanel:
-        """The desk's export folder becomes the panel's default folder."""
-        return cls(analysis, out_dir=out_dir)
+                 geometry: Geometry | None = None, **_options: Any) -> TablePanel:
+        """The desk's export folder becomes the panel's default folder; its geometry table
+        places the moving shape view."""
+        return cls(analysis, out_dir=out_dir, geometry=geometry)
 
     def _failed(self, exc: Exception) -> None:
         self.export_status.value = (f'<span class="modalnb-error" style="color:{PALETTE.error}">'
@@ -207,25 +209,4 @@ class TablePanel(Panel):
             with self.hitmac_fig.batch_update():
                 self.hitmac_fig.data[0].z, self.hitmac_fig.data[0].x, self.hitmac_fig.data[0].y = mat, lab, lab
                 self.hitmac_fig.layout.title = f"MAC between hits, mode {m} (per-hit residues)"
-        k = r["mode"].values.tolist().index(m)
-        s = r["shape_amplitude"].values[k] * np.cos(np.deg2rad(r["shape_phase_deg"].values[k]))
-        coords = a.records.coords
-        names = [esc(ch) for ch in a.channels]  # plotly reads text as its own markup: escape it
-        with self.shape_fig.batch_update():
-            self.shape_fig.data = []
-            if all(n in coords for n in ("x", "y", "z")):
-                x, y, z = (np.asarray(coords[n].values, float) for n in ("x", "y", "z"))
-                span = max(np.ptp(x), np.ptp(y), np.ptp(z), 1e-9)
-                d = SHAPE_SCALE * span * s
-                self.shape_fig.add_scatter3d(x=x, y=y, z=z, mode="markers", name="sensor positions",
-                                             marker={"color": PALETTE.rejected, "size": 4})
-                self.shape_fig.add_scatter3d(x=x, y=y, z=z + d, mode="lines+markers+text",
-                                             name=f"mode {m} (along Z, scaled)", text=names,
-                                             marker={"color": PALETTE.mode, "size": 5},
-                                             line={"color": PALETTE.mode})
-                self.shape_fig.layout.title = f"mode {m} shape at the sensor positions (x, y, z)"
-            else:
-                self.shape_fig.add_scatter(x=names, y=s, mode="lines+markers", name=f"mode {m}",
-                                           marker={"color": PALETTE.mode, "symbol": "diamond", "size": 9},
-                                           line={"color": PALETTE.mode})
-                self.shape_fig.layout.title = f"mode {m} shape along channel order (amplitude × cos phase)"
+        self.motion.show(r, m, a.records)
