@@ -242,7 +242,8 @@ def _named(source: str) -> Iterator[None]:
         raise cls(f"{source}: {exc}") from exc
 
 
-def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: str) -> Any:
+def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: str,
+                   more: Any = None) -> Any:
     from .export import write_modal_table
     from .pipeline import run_recipe
 
@@ -260,7 +261,8 @@ def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: s
 
     steps("writing the modal table")
     # one set: the report is written beside the table and the folder replaced as a whole
-    write_modal_table(result, out, recipe=recipe, checks=checks, extra_files={"report.html": report})
+    extra = {"report.html": report, **(more(result, checks) if more else {})}
+    write_modal_table(result, out, recipe=recipe, checks=checks, extra_files=extra)
     steps.done()
     return result, checks
 
@@ -440,7 +442,63 @@ def _cmd_campaign(args: argparse.Namespace) -> int:
     return 0 if all(str(s) == "ok" for s in ds["set_status"].values) else 1
 
 
+def _cmd_demo_roving(args: argparse.Namespace) -> int:
+    """``modalnb demo --roving``: the roving-hammer test of a welded frame, generated, fitted,
+    with the moving shape view on its geometry table and the FE truth beside it."""
+    import json
+
+    from .demo import write_roving_demo
+    from .export import CAUTION, format_modal_table
+    from .export.shape_view import SHAPE_VIEW_FILE, shape_view_html
+    from .geometry import read_geometry
+    from .io import open_records
+
+    out = Path("modalnb-roving-demo" if args.out == "modalnb-demo" else args.out)
+    _check_out(out)
+    base = _base_recipe(args)
+    steps = _Steps(args.quiet)
+    steps("generating the roving-hammer test of a welded frame (75 hits)")
+    paths = write_roving_demo(out / "roving-data")
+    ds = open_records(paths["records"])
+    truth = json.loads(paths["truth"].read_text(encoding="utf-8"))
+    geometry = read_geometry(paths["nodes"], paths["lines"])
+    args.source = "roving-hammer demo (generated)"
+    recipe = _recipe_from_args(args, ds, base)
+
+    def views(result: Any, checks: Any) -> dict[str, Any]:
+        def write(path: Path) -> None:
+            steps("writing the moving shape view")
+            path.write_text(shape_view_html(ds, result, geometry, title="modalnb roving demo: mode "
+                                            "shapes on the frame"), encoding="utf-8")
+        return {SHAPE_VIEW_FILE: write}
+
+    result, checks = _fit_and_write(ds, recipe, out, steps, title="modalnb roving-hammer demo",
+                                    more=views)
+    rejected = [f"hit {int(h)} ({r})" for h, a, r in zip(
+        result["hit"].values, result["hit_accepted"].values, result["hit_reason"].values, strict=True)
+        if not a]
+    print(f"modalnb demo: {ds.attrs.get('title', 'roving-hammer demo')}")
+    print(f"{int(result['hit_accepted'].values.sum())} of {ds.sizes['hit']} hits used; left out: "
+          f"{', '.join(rejected) or 'none'}")
+    print()
+    print("Modal table")
+    print(format_modal_table(result))
+    print()
+    print(_truth_comparison(result, truth).replace("generated physics", "finite-element model, "
+                                                   "scipy.linalg.eigh"))
+    print(f"wrote modes.csv, shapes.csv, hits.csv, poles_set_aside.csv, modes.nc, modes.json, "
+          f"recipe.json, report.html, {SHAPE_VIEW_FILE} to {out}")
+    print(f"the generated test (records, FE truth, geometry table {paths['nodes'].name} + "
+          f"{paths['lines'].name}) is in {out / 'roving-data'}")
+    print(CAUTION)
+    return 0
+
+
 def _cmd_demo_or_campaign(args: argparse.Namespace) -> int:
+    if getattr(args, "roving", False):
+        if args.campaign:
+            raise _BadOption("give --roving or --campaign, not both.")
+        return _cmd_demo_roving(args)
     if not args.campaign:
         return _cmd_demo(args)
     import json
@@ -491,6 +549,9 @@ def build_parser() -> argparse.ArgumentParser:
 
     pd = sub.add_parser("demo", help="run the main job on the bundled example campaign")
     pd.add_argument("--out", default="modalnb-demo", help="output folder (default: modalnb-demo)")
+    pd.add_argument("--roving", action="store_true", help="the roving-hammer demo instead: a welded "
+                    "frame hit at 25 nodes (75 hits, two fixed accelerometers), its finite-element "
+                    "truth and the moving shape view (default --out modalnb-roving-demo)")
     _add_fit_args(pd)
     pd.set_defaults(func=_cmd_demo)
 

@@ -144,3 +144,19 @@ def test_node_shapes_and_scaled_shapes_match_the_fe_truth(roving):
         # modal mass of the unit-maximum shape: 1 / max|phi|^2 (phi^T M phi = 1)
         assert float(result["modal_mass_kg"].values[k]) == pytest.approx(1 / np.abs(phi).max() ** 2,
                                                                         rel=0.05)
+
+
+def test_cli_roving_demo_writes_the_table_the_view_and_the_data(tmp_path, capsys):
+    from modalnb.cli import main
+
+    out = tmp_path / "rov"
+    assert main(["demo", "--roving", "--out", str(out), "--quiet"]) == 0
+    text = capsys.readouterr().out
+    assert "74 of 75 hits used" in text and "hit 14" in text  # the double hit, left out
+    assert "finite-element model, scipy.linalg.eigh" in text and "not found" not in text
+    for name in ("modes.csv", "report.html", "shape_view.html", "roving-data/frame_nodes.csv",
+                 "roving-data/roving_truth.json"):
+        assert (out / name).is_file(), name
+    page = (out / "shape_view.html").read_text(encoding="utf-8")
+    assert "modalnb-shape-placed" not in page  # every node has a position (the geometry table)
+    assert main(["demo", "--roving", "--campaign", "--out", str(tmp_path / "x")]) != 0
