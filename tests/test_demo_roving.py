@@ -113,6 +113,11 @@ def test_geometry_files_cover_every_node(tmp_path, roving):
     assert full.placed == ()
     reread = modalnb.open_records(paths["records"])
     assert reread["excitation_node"].values.tolist() == ds["excitation_node"].values.tolist()
+    # the FE modes in pair_modes' layout: every fitted mode pairs with its FE mode (frequency
+    # from scipy.linalg.eigh, independent of the fit)
+    pair = modalnb.pair_modes(result, (paths["model_modes"], paths["model_shapes"]))
+    assert pair["test_mode"].values.tolist() == pair["model_mode"].values.tolist() == [1, 2, 3, 4, 5, 6]
+    assert np.all(np.abs(pair["frequency_difference_pct"].values) < 0.01)
 
 
 NODE_SHAPES = importlib.util.find_spec("modalnb.node_shapes") is not None
