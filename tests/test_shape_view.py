@@ -37,7 +37,7 @@ ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
 
 def _table():
     return xr.Dataset(
-        {"node_shape_amplitude": (("mode", "node"), [[1.0, 0.5, 0.0], [0.2, 1.0, 0.4]]),
+        {"node_shape_amplitude": (("mode", "node"), [[1.0, 0.5, 0.0], [0.2, np.nan, 1.0]]),
          "node_shape_phase_deg": (("mode", "node"), [[90.0, 0.0, 0.0], [0.0, 180.0, 0.0]]),
          "frequency_hz": ("mode", [12.5, 40.0])},
         coords={"mode": [1, 2], "node": ["B", "C", EVIL],
@@ -73,9 +73,10 @@ def test_section_embeds_plotly_only_when_asked_and_escapes_names():
     assert page.count(get_plotlyjs()) == 1
     assert EVIL not in page
     data = json.loads(re.search(r"var D = (\{.*?\}), id = ", page).group(1))
-    # mode 2 at node C: amplitude 1 at 180 degrees along +X
-    assert data["modes"][1]["re"][2] == pytest.approx([-1.0, 0.0, 0.0])
-    assert data["modes"][1]["measured"] == [False, True, True, True]
+    # mode 2 at node B: amplitude 0.2 at 0 degrees along +Z; C has no value (NaN): still
+    assert data["modes"][1]["re"][1] == pytest.approx([0.0, 0.0, 0.2])
+    assert data["modes"][1]["measured"] == [False, True, False, True]
+    assert data["modes"][0]["measured"] == [False, True, True, True]
 
 
 def test_hit_nodes_without_position_are_named_under_the_view():
@@ -139,6 +140,8 @@ def test_view_plays_pauses_and_rescales_offline_in_chromium():
             z2 = node_b_z()
             page.select_option(".modalnb-shape-mode", "1")
             title = page.evaluate("document.getElementById('modalnb-shape-view').layout.title.text")
+            still = page.evaluate("Array.from(document.getElementById('modalnb-shape-view').data[1].text)")
+            moving = page.evaluate("Array.from(document.getElementById('modalnb-shape-view').data[3].text)")
         finally:
             ctx.close()
     assert external == [] and dialogs == [] and errors == []
@@ -147,3 +150,4 @@ def test_view_plays_pauses_and_rescales_offline_in_chromium():
         assert z2 == pytest.approx(2 * z1, rel=1e-9)
         assert np.sign(z1) == -np.sign(np.sin(theta))
     assert "mode 2" in title
+    assert still == ["A", "C"] and moving == ["B", "&lt;img src=x onerror=alert(1)&gt;"]  # mode 2: C still

@@ -214,7 +214,7 @@ def shape_view_figure(table: xr.Dataset, mode: int, *, geometry: Geometry | None
 def _view_data(g: Geometry, table: xr.Dataset, modes: list[int]) -> dict[str, Any]:
     """What the page's player needs: positions, lines, each mode's complex motion."""
     out: dict[str, Any] = {"xyz": np.round(g.xyz, 9).tolist(), "lines": g.line_index().tolist(),
-                           "modes": []}
+                           "labels": [_e(n) for n in g.nodes], "modes": []}
     for m in modes:
         motion, measured = node_motion(g, table, m)
         out["modes"].append({"mode": m, "label": _mode_label(table, m),
@@ -266,12 +266,15 @@ _PLAYER_JS = """
     if (!window.Plotly || !gd || !gd.data) { return setTimeout(start, 50); }
     sel.addEventListener("change", function () {
       state.mode = parseInt(sel.value, 10);
-      var titleText = D.modes[state.mode].label;
-      var g = document.getElementById(id);
-      Plotly.restyle(g, {x: [D.xyz.filter(function (_, i) { return !D.modes[state.mode].measured[i]; }).map(function (q) { return q[0]; })],
-                         y: [D.xyz.filter(function (_, i) { return !D.modes[state.mode].measured[i]; }).map(function (q) { return q[1]; })],
-                         z: [D.xyz.filter(function (_, i) { return !D.modes[state.mode].measured[i]; }).map(function (q) { return q[2]; })]}, [1]);
-      Plotly.relayout(g, {"title.text": titleText});
+      var m = D.modes[state.mode], g = document.getElementById(id);
+      var still = [], moving = [];
+      for (var i = 0; i < D.xyz.length; i++) (m.measured[i] ? moving : still).push(i);
+      function col(idx, a) { return idx.map(function (i) { return D.xyz[i][a]; }); }
+      function names(idx) { return idx.map(function (i) { return D.labels[i]; }); }
+      Plotly.restyle(g, {x: [col(still, 0)], y: [col(still, 1)], z: [col(still, 2)],
+                         text: [names(still)]}, [1]);
+      Plotly.restyle(g, {text: [names(moving)]}, [__NODES__]);
+      Plotly.relayout(g, {"title.text": m.label});
       draw();
     });
     btn.addEventListener("click", function () { play(!state.playing); });
