@@ -421,18 +421,21 @@ def _axis_of(direction: Any, where: str) -> int:
     return _AXES[d]
 
 
-def _shape_source(table: xr.Dataset) -> tuple[str, str, str, list[str], list[Any]]:
-    """(amplitude variable, phase variable, dim, node per entry, direction per entry)."""
+def _shape_source(table: xr.Dataset) -> tuple[str, str, str, list[str], list[Any], list[str]]:
+    """(amplitude variable, phase variable, dim, node per entry, direction per entry, entry
+    names for messages)."""
     if "node_shape_amplitude" in table.data_vars and "node_shape_phase_deg" in table.data_vars:
         nodes = [str(n) for n in table["node"].values]
         dirs = (list(table["node_direction"].values) if "node_direction" in table.coords
                 else [None] * len(nodes))
-        return "node_shape_amplitude", "node_shape_phase_deg", "node", nodes, dirs
+        return ("node_shape_amplitude", "node_shape_phase_deg", "node", nodes, dirs,
+                [f"node {n!r}" for n in nodes])
     if "shape_amplitude" in table.data_vars and "shape_phase_deg" in table.data_vars:
         nodes = _channel_nodes(table)
         dirs = (list(table["direction"].values) if "direction" in table.coords
                 and tuple(table["direction"].dims) == ("channel",) else [None] * len(nodes))
-        return "shape_amplitude", "shape_phase_deg", "channel", nodes, dirs
+        return ("shape_amplitude", "shape_phase_deg", "channel", nodes, dirs,
+                [f"channel {str(c)!r}" for c in table["channel"].values])
     raise GeometryError("the modal table has no shapes (node_shape_amplitude / node_shape_phase_deg "
                         "over node, or shape_amplitude / shape_phase_deg over channel).")
 
@@ -474,7 +477,7 @@ def node_motion(geometry: Geometry, table: xr.Dataset, mode: int) -> tuple[np.nd
     >>> np.round(motion.real, 6).tolist(), measured.tolist()
     ([[1.0, 0.0, 0.0], [0.0, 0.0, -0.5]], [True, True])
     """
-    amp_var, ph_var, dim, nodes, dirs = _shape_source(table)
+    amp_var, ph_var, dim, nodes, dirs, names = _shape_source(table)
     modes = [int(m) for m in table["mode"].values]
     if int(mode) not in modes:
         raise GeometryError(f"the modal table has no mode {mode!r} (modes {modes}).")
@@ -484,10 +487,13 @@ def node_motion(geometry: Geometry, table: xr.Dataset, mode: int) -> tuple[np.nd
     psi = amp * np.exp(1j * np.deg2rad(ph))
     motion = np.zeros((len(geometry.nodes), 3), dtype=complex)
     measured = np.zeros(len(geometry.nodes), dtype=bool)
-    for n, d, v in zip(nodes, dirs, psi, strict=True):
+    for n, d, v, name in zip(nodes, dirs, psi, names, strict=True):
+        if d is not None and str(d).strip():
+            axis = _axis_of(d, f"the modal table's {name}")
+        else:
+            axis = 2
         if n not in geometry or not np.isfinite(v):
             continue
-        axis = 2 if d is None or str(d).strip() == "" else _axis_of(d, f"{dim} {n!r}")
         i = geometry.index(n)
         motion[i, axis] += v
         measured[i] = True

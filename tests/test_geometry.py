@@ -160,7 +160,7 @@ def test_deformed_positions_by_hand():
 
 def test_unknown_direction_and_mode_are_one_line_errors():
     g = Geometry(("A",), np.zeros((1, 3)))
-    with pytest.raises(GeometryError, match="direction 'up'"):
+    with pytest.raises(GeometryError, match="modal table's channel 'c0': direction 'up'"):
         node_motion(g, _table(["A"], ["up"], [1.0], [0.0]), 1)
     with pytest.raises(GeometryError, match="no mode 3"):
         node_motion(g, _table(["A"], ["+Z"], [1.0], [0.0]), 3)
