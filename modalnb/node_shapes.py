@@ -556,7 +556,7 @@ def with_node_shapes(table: xr.Dataset, records: xr.Dataset) -> xr.Dataset:
     >>> res["node_shape_amplitude"].dims, "channel_node" in res.coords
     (('mode', 'node'), True)
     """
-    if not is_roving(records) or "setup" in records.coords:
+    if not is_roving(records) or "hit_setup" in records.coords:
         return table
     out = table
     if "node" in out.coords and out["node"].dims == ("channel",):
