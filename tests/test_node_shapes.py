@@ -298,3 +298,32 @@ def test_setup_errors_are_one_line(tmp_path):
         with pytest.raises(SetupError, match=pattern) as err:
             read_setup_manifest(tmp_path / "m.csv")
         assert "\n" not in str(err.value)
+
+
+def test_cli_fit_setups_from_a_manifest(tmp_path, capsys):
+    """``modalnb fit --setups manifest.csv``: one table glued over the setups, with
+    node_shapes.csv; the same numbers as fit_setups."""
+    import csv
+
+    from modalnb.cli import main
+
+    sets = _three_setups()
+    for name, ds in zip("ABC", sets, strict=True):
+        modalnb.save_records(ds, tmp_path / f"{name}.nc")
+    (tmp_path / "setups.csv").write_text("setup,records\nA,A.nc\nB,B.nc\nC,C.nc\n")
+    out = tmp_path / "out"
+    assert main(["fit", str(tmp_path / "setups.csv"), "--setups", "--reference-channel", "ref",
+                 "--out", str(out), "--quiet"]) == 0
+    with open(out / "node_shapes.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert list(rows[0])[:8] == ["mode", "node", "node_name", "direction", "role", "amplitude",
+                                 "phase_deg", "mass_normalised_kg^-1/2"]
+    direct = fit_setups(sets, names=["A", "B", "C"], reference_channels=["ref"])
+    got = np.array([float(r["mass_normalised_kg^-1/2"]) for r in rows]).reshape(
+        direct.sizes["mode"], -1)
+    np.testing.assert_allclose(got, direct["node_shape_mass_normalised"].values, rtol=1e-9)
+    assert main(["fit", str(tmp_path / "A.nc"), str(tmp_path / "B.nc"), "--setups",
+                 "--reference-channel", "roving2", "--out", str(tmp_path / "o2"),
+                 "--quiet"]) != 0
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "reference channel 'roving2' is only in setup 'A'" in err[0]
