@@ -74,6 +74,7 @@ def read_setup_manifest(manifest: str | os.PathLike[str]) -> list[tuple[str, Pat
     >>> import tempfile, pathlib
     >>> d = pathlib.Path(tempfile.mkdtemp())
     >>> _ = (d / "s.csv").write_text("setup,records\\nA,a.nc\\nB,b.nc\\n")
+    >>> _ = [(d / f).write_bytes(b"") for f in ("a.nc", "b.nc")]
     >>> [(n, p.name) for n, p in read_setup_manifest(d / "s.csv")]
     [('A', 'a.nc'), ('B', 'b.nc')]
     """
@@ -325,7 +326,14 @@ def setup_node_shapes(table: xr.Dataset, records: xr.Dataset, *,
 
     Examples
     --------
-    >>> # see fit_setups
+    >>> from modalnb import fit_modes
+    >>> from modalnb.testing.scenarios import roving_chain
+    >>> a, _ = roving_chain(3, hits_per_node=2, hit_masses=(2,), sensor_masses=(0, 1))
+    >>> b, _ = roving_chain(3, hits_per_node=2, hit_masses=(2,), sensor_masses=(1, 2))
+    >>> both = combine_setups([a, b], names=["A", "B"])
+    >>> res = setup_node_shapes(fit_modes(both), both)
+    >>> res["setup_glue_misfit"].sel(setup="B").values.round(12).tolist()
+    [0.0, 0.0, 0.0]
     """
     meta = _meta_of(records)
     refs = _reference_keys(meta, reference_channels)
