@@ -474,7 +474,13 @@ def fit_modes(
         :mod:`modalnb.estimate._select`): ``aside_frequency_hz``, ``aside_damping_ratio``,
         ``aside_frequency_hz_std``, ``aside_energy``, ``aside_reason``. Over hit: ``hit_accepted``, ``hit_reason``, ``hit_warnings`` (of
         the hit checks). The damping cross-checks of :func:`modalnb.estimate.cross_checks`
-        (``xcheck_*``, each with its known bias in the attrs). Attributes: ``recipe`` (JSON
+        (``xcheck_*``, each with its known bias in the attrs). For a roving-hammer record
+        set (hits' ``excitation_node`` naming more than one node): the shapes over nodes of
+        :func:`modalnb.node_shapes` (``node_shape_amplitude``, ``node_shape_phase_deg``,
+        ``node_shape_mass_normalised`` over (mode, node); ``node_shape_mpc``,
+        ``modal_mass_kg``, ``node_shape_status`` over mode; coords ``node_direction``,
+        ``node_role``), the hits' excitation coords, and the channel coord ``node`` renamed
+        ``channel_node``. Attributes: ``recipe`` (JSON
         that replays the call), ``settings`` (JSON; ``fit_quality`` says whether the model
         fits the data), ``band``, ``window``,
         ``input_checksum``, ``modalnb_version``.
