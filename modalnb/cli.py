@@ -197,6 +197,8 @@ def _recipe_from_args(args: argparse.Namespace, records: Any, base: Any = None):
                                        **_thresholds_from_args(args.threshold)}
     if getattr(args, "source", None):
         changes["source"] = args.source
+    if getattr(args, "reference_channel", None):
+        changes["reference_channels"] = list(args.reference_channel)
     recipe = recipe_for(records, base, **changes)
     if recipe.replayed_on_checksum:  # the recipe keeps its own checksum (provenance)
         print(
@@ -278,7 +280,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     steps("reading records")
     post = None
     if getattr(args, "setups", False):
-        ds, post = _open_setups(args)
+        ds, post = _open_setups(args, base)
     else:
         if getattr(args, "reference_channel", None):
             raise _BadOption("--reference-channel needs --setups (several setups to glue).")
@@ -294,7 +296,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     return 0
 
 
-def _open_setups(args: argparse.Namespace) -> tuple[Any, Any]:
+def _open_setups(args: argparse.Namespace, base: Any = None) -> tuple[Any, Any]:
     """The setups of ``fit --setups`` as one record set, and the gluing step after the fit."""
     from .io import open_records
     from .setups import combine_setups, read_setup_manifest, setup_node_shapes
@@ -314,7 +316,7 @@ def _open_setups(args: argparse.Namespace) -> tuple[Any, Any]:
         with _named(f):
             sets.append(open_records(f, **_reader_options(args)))
     combined = combine_setups(sets, names=names)
-    refs = getattr(args, "reference_channel", None)
+    refs = getattr(args, "reference_channel", None) or (base.reference_channels if base else None)
 
     def post(result: Any) -> Any:
         return setup_node_shapes(result, combined, reference_channels=refs)

@@ -442,6 +442,15 @@ def setup_node_shapes(table: xr.Dataset, records: xr.Dataset, *,
             "description": "|alpha v - g| / |g| over the reference nodes after scaling"}),
     )
     out = out.merge(nodes)
+    if isinstance(out.attrs.get("recipe"), str):  # the choice lives in the recipe
+        from dataclasses import replace
+
+        from .recipe import Recipe
+
+        refs_list = None if reference_channels is None else list(
+            [reference_channels] if isinstance(reference_channels, str) else reference_channels)
+        out.attrs["recipe"] = replace(Recipe.from_json(out.attrs["recipe"]),
+                                      reference_channels=refs_list).to_json()
     out.attrs["setups"] = json.dumps({
         "setups": meta,
         "reference_channels": None if reference_channels is None else list(
@@ -464,6 +473,7 @@ def fit_setups(
     max_order: int | None = None,
     scatter: bool = True,
     blas_threads: int | None = 1,
+    recipe: Any = None,
 ) -> xr.Dataset:
     """Fit several setups with poles shared over all of them and glue their shapes.
 
@@ -482,6 +492,10 @@ def fit_setups(
     accept : mapping or sequence of bool, optional
         Hit decisions over the combined hits (1..N in setup order; ``setup_hit`` gives
         each hit's label in its own file).
+    recipe : modalnb.Recipe or path, optional
+        Replay a recipe (as :func:`modalnb.fit_modes`); its ``reference_channels`` are used
+        unless `reference_channels` is given. The table's ``attrs["recipe"]`` holds the
+        reference channels used.
 
     Returns
     -------
@@ -506,12 +520,21 @@ def fit_setups(
     (['m1', 'm2', 'm3'], ['sensor', 'sensor', 'driving point'])
     """
     from .fitting import fit_modes
+    from .recipe import Recipe, load_recipe
 
+    if recipe is not None:
+        recipe = recipe if isinstance(recipe, Recipe) else load_recipe(recipe)
+        if reference_channels is None:
+            reference_channels = recipe.reference_channels
     names = _names(records_list, names)
     meta = [_setup_meta(n, ds) for n, ds in zip(names, records_list, strict=True)]
     _check_glue(meta, _reference_keys(meta, reference_channels))
     combined = combine_setups(records_list, names=names)
-    table = fit_modes(combined, band=band, window=window, n_modes=n_modes, accept=accept,
-                      check_thresholds=check_thresholds, max_order=max_order, scatter=scatter,
-                      blas_threads=blas_threads)
+    if recipe is not None:
+        table = fit_modes(combined, recipe=recipe, max_order=max_order, scatter=scatter,
+                          blas_threads=blas_threads)
+    else:
+        table = fit_modes(combined, band=band, window=window, n_modes=n_modes, accept=accept,
+                          check_thresholds=check_thresholds, max_order=max_order,
+                          scatter=scatter, blas_threads=blas_threads)
     return setup_node_shapes(table, combined, reference_channels=reference_channels)

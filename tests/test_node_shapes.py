@@ -18,6 +18,8 @@ Truth (nothing here calls modalnb to make it):
 
 from __future__ import annotations
 
+import json
+
 import numpy as np
 import pytest
 import scipy.linalg
@@ -267,6 +269,14 @@ def test_three_setups_glued_by_a_reference_sensor():
     auto = fit_setups(sets, names=["A", "B", "C"])
     np.testing.assert_allclose(auto["node_shape_mass_normalised"].values,
                                res["node_shape_mass_normalised"].values, atol=1e-12)
+    # the choice lives in the recipe, and a replay of it glues the same way
+    recipe = modalnb.Recipe.from_json(res.attrs["recipe"])
+    assert recipe.reference_channels == ["ref"]
+    assert "reference_channels" not in json.loads(auto.attrs["recipe"])
+    replay = fit_setups(sets, names=["A", "B", "C"], recipe=recipe)
+    np.testing.assert_allclose(replay["node_shape_mass_normalised"].values,
+                               res["node_shape_mass_normalised"].values, rtol=1e-9)
+    assert modalnb.Recipe.from_json(replay.attrs["recipe"]) == recipe
 
 
 def test_setup_errors_are_one_line(tmp_path):
