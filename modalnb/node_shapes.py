@@ -165,7 +165,7 @@ def _entries(keys: Sequence[tuple[str, str]]) -> _Entries:
     slots: list[tuple[str, str, str]] = []  # (label, name, axis)
     index_key: dict[tuple[str, str], tuple[str, str, str]] = {}
     for n in sorted(axes_of, key=_natural_key):
-        stated = axes_of[n]
+        stated = sorted(axes_of[n])
         if len(stated) <= 1:
             slot = (n, n, stated[0] if stated else "")
             slots.append(slot)

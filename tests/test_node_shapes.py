@@ -350,3 +350,51 @@ def test_every_entry_point_gives_the_node_shapes():
         np.testing.assert_allclose(other["node_shape_mass_normalised"].values,
                                    direct["node_shape_mass_normalised"].values, rtol=1e-9)
         assert other["node_role"].values.tolist() == direct["node_role"].values.tolist()
+
+
+def test_residue_matrix_layout_rules():
+    """Exact residues R_ij = psi_i psi_j (the modal expansion, Ewins 2000 ch. 2): a node met
+    along two axes gets one entry per axis; a sensor without a stated direction at a hit
+    node is 'both' (glued, but no driving point claimed); sensors that are never hit have
+    no value relative to the hit nodes without a node common to both."""
+    from modalnb.node_shapes import residue_set, shape_over_nodes
+
+    psi = {("a", "Z"): 0.5, ("b", "Z"): 1.0, ("b", "X"): -0.25, ("c", "Z"): 0.8}
+    hits = [("a", "Z", 1.0), ("b", "Z", 1.0), ("b", "X", 1.0), ("c", "Z", 1.0)]
+    chans = [("c", "", 1.0)]  # sensor at c, no direction stated
+    res = np.array([[[psi[("c", "Z")] * psi[(n, a)]] for n, a, _ in hits]], complex)
+    rs = residue_set(res, chans, hits)
+    assert rs.labels == ["a", "b+X", "b+Z", "c"]
+    assert rs.driving == set()
+    p, absolute, _ = shape_over_nodes(rs, 0)
+    assert absolute  # c is sensed and hit: one scale for both sides
+    want = np.array([psi[("a", "Z")], psi[("b", "X")], psi[("b", "Z")], psi[("c", "Z")]])
+    np.testing.assert_allclose(p * np.sign(p[3].real), want, atol=1e-12)
+    # two sensors never hit: hit side only
+    chans = [("d", "Z", 1.0), ("e", "Z", -1.0)]
+    psi_de = np.array([0.3, -0.6])
+    hits = [("a", "Z", 1.0), ("b", "Z", 1.0), ("c", "Z", 1.0)]
+    psi_h = np.array([0.5, 1.0, 0.8])
+    res = (psi_h[:, None] * (psi_de * np.array([1.0, -1.0]))[None, :])[None].astype(complex)
+    rs = residue_set(res, chans, hits)
+    p, absolute, note = shape_over_nodes(rs, 0)
+    assert not absolute and "sensor nodes not hit" in note
+    assert np.all(np.isnan(p[3:]))
+    q = p[:3] / p[1]
+    np.testing.assert_allclose(q, psi_h / psi_h[1], atol=1e-12)
+
+
+def test_pairing_a_roving_table_with_the_eigen_model():
+    """pair_modes reads the shapes over nodes: every test mode pairs with its eig mode."""
+    res = modalnb.fit_modes(_records(sensors=[4], hit_nodes=range(N_DOF), hits_per_node=1))
+    import xarray as xr
+
+    model = xr.Dataset(
+        {"frequency_hz": ("mode", TRUTH["frequency_hz"]),
+         "shape": (("mode", "dof"), TRUTH["mass_normalised"].T)},
+        coords={"mode": np.arange(1, N_DOF + 1), "node": ("dof", NODES),
+                "direction": ("dof", ["+Z"] * N_DOF)})
+    pairs = modalnb.pair_modes(res, model)
+    assert pairs["test_mode"].values.tolist() == pairs["model_mode"].values.tolist()
+    assert np.all(pairs["mac"].values > 0.99)
+    assert np.all(np.abs(pairs["frequency_difference_pct"].values) < 0.1)
