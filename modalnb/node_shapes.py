@@ -203,6 +203,7 @@ class ResidueSet:
     values: np.ndarray
     driving: set[int] = field(default_factory=set)
     hit_counts: dict[int, int] = field(default_factory=dict)
+    hit_scatter: np.ndarray | None = None  # (mode, entry): see residue_set
 
 
 def residue_set(
@@ -251,10 +252,21 @@ def residue_set(
     hsign = np.array([s for _, _, s in hit_dofs], float)
     signed = hr * hsign[None, :, None] * csign[None, None, :]
     vals = np.full((hr.shape[0], len(sensors), len(hits)), np.nan, complex)
+    scatter = np.full((hr.shape[0], len(ent.labels)), np.nan)
     counts: dict[int, int] = {}
+    used = [c for s in sensors for c in s_of[s]]
     for j, e in enumerate(hits):
         hs = e_of[e]
-        counts[e] = int(np.sum(np.all(np.isfinite(hr[:, hs, :]), axis=(0, 2)))) if hr.size else 0
+        counts[e] = int(np.sum(np.all(np.isfinite(hr[:, hs, :]), axis=(0, 2)))) if hr.shape[0] else 0
+        acc = [h for h in hs if np.all(np.isfinite(signed[:, h, used]))]
+        if len(acc) >= 2 and used:
+            block = signed[:, acc][:, :, used]  # (mode, hits, channels)
+            mean = block.mean(axis=1, keepdims=True)
+            spread = np.sqrt(np.sum(np.abs(block - mean) ** 2, axis=(1, 2))
+                             / ((len(acc) - 1) * len(used)))
+            level = np.sqrt(np.mean(np.abs(mean[:, 0, :]) ** 2, axis=1))
+            with np.errstate(invalid="ignore", divide="ignore"):
+                scatter[:, e] = np.where(level > 0, spread / np.where(level > 0, level, 1), np.nan)
         for i, s in enumerate(sensors):
             block = signed[:, hs][:, :, s_of[s]]  # (mode, hits, channels)
             ok = np.isfinite(block)
@@ -268,7 +280,8 @@ def residue_set(
     for n, a, _ in hit_dofs:
         if n and a and (n, a) in stated_s:
             driving.add(ent.of(n, a))
-    return ResidueSet(ent.labels, ent.names, ent.axes, sensors, hits, vals, driving, counts)
+    return ResidueSet(ent.labels, ent.names, ent.axes, sensors, hits, vals, driving, counts,
+                      scatter)
 
 
 def shape_over_nodes(rs: ResidueSet, k: int) -> tuple[np.ndarray, bool, str]:
@@ -463,6 +476,11 @@ def node_dataset(rs: ResidueSet, psi: np.ndarray, absolute: np.ndarray, notes: S
                          response_units=resp_u, force_units=force_u, driving=bool(rs.driving))
     counts = np.array([rs.hit_counts.get(e, 0) for e in range(len(rs.labels))], np.int64)
     dv["node_hit_count"] = ("node", counts, {"description": "accepted hits at the node"})
+    if rs.hit_scatter is not None:
+        dv["node_hit_scatter"] = (("mode", "node"), rs.hit_scatter, {
+            "description": "scatter of the hits' residues at the node: their standard "
+                           "deviation (ddof 1) over the RMS of their mean, over the channels; "
+                           "NaN below 2 accepted hits or for a node not hit"})
     coords = {
         "mode": table["mode"].values,
         "node": np.array(rs.labels, dtype=object),
@@ -508,7 +526,9 @@ def node_shapes(table: xr.Dataset) -> xr.Dataset:
     xarray.Dataset
         Over (mode, node): ``node_shape_amplitude``, ``node_shape_phase_deg``,
         ``node_shape_mass_normalised``; over mode: ``node_shape_mpc``, ``modal_mass_kg``,
-        ``node_shape_status``; over node: ``node_hit_count`` and the coords
+        ``node_shape_status``; ``node_hit_scatter`` over (mode, node) (the relative
+        hit-to-hit scatter of the residues at a hit node: a check of the 3-5 hits per node
+        common practice asks for); over node: ``node_hit_count`` and the coords
         ``node_name``, ``node_direction`` (``"+Z"``: the value is the motion along +Z;
         ``""`` when no direction is given), ``node_role`` (one of :data:`NODE_ROLES`).
         A node met along one axis is labelled by its name, one met along several by

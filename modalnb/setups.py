@@ -411,9 +411,18 @@ def setup_node_shapes(table: xr.Dataset, records: xr.Dataset, *,
         {gmap[s][e] for s, p in enumerate(parts) for e in p.driving},
         {},
     )
+    scat_sum = np.zeros((m_modes, n_ent))
+    scat_n = np.zeros((m_modes, n_ent))
     for s, p in enumerate(parts):
         for e, c in p.hit_counts.items():
             union.hit_counts[gmap[s][e]] = union.hit_counts.get(gmap[s][e], 0) + c
+        if p.hit_scatter is not None:
+            for e in range(len(p.labels)):
+                f = np.isfinite(p.hit_scatter[:, e])
+                scat_sum[f, gmap[s][e]] += p.hit_scatter[f, e]
+                scat_n[f, gmap[s][e]] += 1
+    # a node hit in several setups: the mean of their scatters
+    union.hit_scatter = np.where(scat_n > 0, scat_sum / np.maximum(scat_n, 1), np.nan)
     # mass normalisation needs the base setup's own driving point (absolute[k])
     nodes = node_dataset(union, psi, absolute, notes, table)
     n_slot = table.sizes["channel"]

@@ -398,3 +398,26 @@ def test_pairing_a_roving_table_with_the_eigen_model():
     assert pairs["test_mode"].values.tolist() == pairs["model_mode"].values.tolist()
     assert np.all(pairs["mac"].values > 0.99)
     assert np.all(np.abs(pairs["frequency_difference_pct"].values) < 0.1)
+
+
+def test_hit_scatter_and_a_node_without_accepted_hits():
+    """One hit at m2 with its force read 1/1.3 too low (a loose connector): that hit's
+    residue is 1.3x the others, so by the definition of node_hit_scatter (standard
+    deviation, ddof 1, over the RMS of the mean) the three hits [1, 1, 1.3] give
+    sqrt((0.1^2 + 0.1^2 + 0.2^2) / 2) / 1.1 = 0.157 (worked by hand); the other nodes hold
+    only the 40 dB noise. Rejecting every hit at m4 leaves m4 without a value."""
+    rec = _records(sensors=[4], hit_nodes=range(N_DOF))
+    force = rec["force"].values.copy()
+    first_m2 = int(np.flatnonzero(rec["excitation_node"].values == "m2")[0])
+    force[first_m2] /= 1.3
+    rec = rec.copy(data={**{k: v.values for k, v in rec.data_vars.items()}, "force": force})
+    res = modalnb.fit_modes(rec)
+    scat = res["node_hit_scatter"].sel(node="m2").values
+    np.testing.assert_allclose(scat, 0.157, atol=0.02)
+    others = res["node_hit_scatter"].drop_sel(node="m2").values
+    assert np.nanmax(others) < 0.03
+    hits_m4 = rec["hit"].values[rec["excitation_node"].values == "m4"].tolist()
+    res = modalnb.fit_modes(rec, accept={h: False for h in hits_m4})
+    assert int(res["node_hit_count"].sel(node="m4")) == 0
+    assert np.all(np.isnan(res["node_shape_amplitude"].sel(node="m4").values))
+    assert np.all(np.isfinite(res["node_shape_amplitude"].sel(node="m3").values))
