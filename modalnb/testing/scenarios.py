@@ -387,6 +387,12 @@ def roving_chain(
     modal superposition of :func:`campaign`. Nodes are named ``m1 .. mN`` (mass 1 at the
     grounded end), hits carry ``excitation_node`` and ``excitation_direction`` (+Z).
 
+    The force is the raw sampled half-sine (1 ms = 4 samples at 4096 Hz by default), not
+    an anti-aliased one: the sum of its samples underestimates the pulse's integral by
+    about 4 %, so residues per unit force (and scaled shapes, modal masses) from these
+    records are biased by a few % at the low modes; use a longer contact or a higher
+    sample rate when that matters (tests/test_node_shapes.py uses a smooth pulse).
+
     Returns
     -------
     records : xarray.Dataset
