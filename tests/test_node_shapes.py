@@ -448,3 +448,49 @@ def test_campaign_tracks_roving_sets_by_their_node_shapes(tmp_path):
     paired = np.isfinite(mac_s3)  # modes the campaign could still pair (by its own rule)
     assert paired.sum() >= 2 and np.nanmin(mac_s3) < 0.9
     np.testing.assert_allclose(mac_s3[paired], want[paired], atol=0.01)
+
+
+def _property_case(data):
+    """Random shape over n nodes, random sensor and hit node subsets sharing >= 1 node."""
+    from hypothesis import strategies as st
+
+    n = data.draw(st.integers(2, 7), label="nodes")
+    psi = np.array(data.draw(st.lists(st.floats(0.05, 1.0), min_size=n, max_size=n),
+                             label="|psi|"))
+    psi *= np.array(data.draw(st.lists(st.sampled_from([-1.0, 1.0]), min_size=n, max_size=n),
+                              label="signs"))
+    common = data.draw(st.integers(0, n - 1), label="driving node")
+    sensors = sorted({common, *data.draw(st.sets(st.integers(0, n - 1), max_size=2))})
+    hits = sorted({common, *data.draw(st.sets(st.integers(0, n - 1), min_size=1))})
+    modal_constant = complex(data.draw(st.floats(0.1, 10.0)), data.draw(st.floats(-10.0, 10.0)))
+    return psi, sensors, hits, modal_constant
+
+
+def test_property_rank_one_residues_give_psi_psi_exactly():
+    """For any shape and any sensor/hit layout with a driving point, residues
+    R_ij = c psi_i psi_j (the modal expansion with modal constant c) give back
+    psi_i psi_j = R_ij on every pair of the union of the nodes, and the shape psi up to its
+    sign (hypothesis: Maciver et al. 2019, Hypothesis: a new approach to property-based
+    testing, JOSS 4(43))."""
+    from hypothesis import given, settings
+    from hypothesis import strategies as st
+
+    from modalnb.node_shapes import residue_set, shape_over_nodes
+
+    @settings(max_examples=60, deadline=None)
+    @given(st.data())
+    def check(data):
+        psi, sensors, hits, c = _property_case(data)
+        names = [f"n{i}" for i in range(psi.size)]
+        res = np.array([[[c * psi[s] * psi[h] for s in sensors] for h in hits]], complex)
+        rs = residue_set(res, [(names[s], "Z", 1.0) for s in sensors],
+                         [(names[h], "Z", 1.0) for h in hits])
+        p, absolute, _ = shape_over_nodes(rs, 0)
+        assert absolute
+        union = sorted(set(sensors) | set(hits))
+        got = np.array([p[rs.labels.index(names[i])] for i in union])
+        want = np.sqrt(c) * psi[union]
+        err = min(np.max(np.abs(got - want)), np.max(np.abs(got + want)))
+        assert err <= 1e-9 * np.max(np.abs(want))
+
+    check()
