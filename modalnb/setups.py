@@ -451,6 +451,11 @@ def setup_node_shapes(table: xr.Dataset, records: xr.Dataset, *,
             "description": "|alpha v - g| / |g| over the reference nodes after scaling"}),
     )
     out = out.merge(nodes)
+    for name in ("shape_amplitude", "shape_phase_deg", "residue_real", "residue_imag"):
+        if name in out.data_vars:  # over slots that hold other sensors in other setups
+            out[name].attrs["description"] = (
+                "over the channel slots of combined setups (least squares over every setup's "
+                "hits): not a shape; the shape is node_shape_*")
     if isinstance(out.attrs.get("recipe"), str):  # the choice lives in the recipe
         from dataclasses import replace
 
