@@ -72,6 +72,9 @@ __all__ = [
     "shape_variables",
 ]
 
+#: The column index of the hits that name no node (see :func:`residue_set`).
+UNNAMED = -1
+
 #: The values of ``node_role``.
 NODE_ROLES = ("sensor", "hit", "both", "driving point")
 
@@ -191,7 +194,8 @@ class ResidueSet:
     """Residues of one record set over node entries: ``values`` (mode, sensor, hit), the
     direction signs applied, channels at one entry and hits at one entry averaged.
 
-    ``sensors`` and ``hits`` are entry indices into ``labels``; ``driving`` holds the
+    ``sensors`` and ``hits`` are entry indices into ``labels`` (``hits`` may hold
+    :data:`UNNAMED`, the column of the hits that name no node); ``driving`` holds the
     entries that a sensor and a hit share along the same stated direction.
     """
 
@@ -245,8 +249,9 @@ def residue_set(
             s_of.setdefault(ent.of(n, a), []).append(c)
     e_of: dict[int, list[int]] = {}
     for h, (n, a, _) in enumerate(hit_dofs):
-        if n:
-            e_of.setdefault(ent.of(n, a), []).append(h)
+        # hits that name no node (a fixed hammer nobody labelled): one column of their own
+        # (UNNAMED), which gives the sensor side its shape but no node value
+        e_of.setdefault(ent.of(n, a) if n else UNNAMED, []).append(h)
     sensors, hits = sorted(s_of), sorted(e_of)
     csign = np.array([s for _, _, s in channel_dofs], float)
     hsign = np.array([s for _, _, s in hit_dofs], float)
@@ -257,9 +262,10 @@ def residue_set(
     used = [c for s in sensors for c in s_of[s]]
     for j, e in enumerate(hits):
         hs = e_of[e]
-        counts[e] = int(np.sum(np.all(np.isfinite(hr[:, hs, :]), axis=(0, 2)))) if hr.shape[0] else 0
+        if e != UNNAMED:
+            counts[e] = int(np.sum(np.all(np.isfinite(hr[:, hs, :]), axis=(0, 2)))) if hr.shape[0] else 0
         acc = [h for h in hs if np.all(np.isfinite(signed[:, h, used]))]
-        if len(acc) >= 2 and used:
+        if len(acc) >= 2 and used and e != UNNAMED:
             block = signed[:, acc][:, :, used]  # (mode, hits, channels)
             mean = block.mean(axis=1, keepdims=True)
             spread = np.sqrt(np.sum(np.abs(block - mean) ** 2, axis=(1, 2))
@@ -330,14 +336,17 @@ def shape_over_nodes(rs: ResidueSet, k: int) -> tuple[np.ndarray, bool, str]:
                 acc[e] += a * u[i]
                 cnt[e] += 1
             for j, e in enumerate(e_ent):
-                acc[e] += b * w[j]
-                cnt[e] += 1
+                if e != UNNAMED:
+                    acc[e] += b * w[j]
+                    cnt[e] += 1
             psi = np.where(cnt > 0, acc / np.maximum(cnt, 1), np.nan + 0j)
             return psi, True, ""
     # no node both sensed and hit: only the larger side's values are measured
-    take_hits = len(e_ent) > len(s_ent) or (len(e_ent) == len(s_ent) and len(s_ent) > 1)
+    n_named = sum(e != UNNAMED for e in e_ent)
+    take_hits = n_named > len(s_ent) or (n_named == len(s_ent) and len(s_ent) > 1)
     if take_hits:
-        psi[e_ent] = sigma * w
+        named = [j for j, e in enumerate(e_ent) if e != UNNAMED]
+        psi[[e_ent[j] for j in named]] = sigma * w[named]
         note = "sensor nodes not hit: their values relative to the hit nodes are not measured"
     else:
         psi[s_ent] = sigma * u

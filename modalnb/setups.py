@@ -406,7 +406,7 @@ def setup_node_shapes(table: xr.Dataset, records: xr.Dataset, *,
     union = ResidueSet(
         ent.labels, ent.names, ent.axes,
         sorted({gmap[s][e] for s, p in enumerate(parts) for e in p.sensors}),
-        sorted({gmap[s][e] for s, p in enumerate(parts) for e in p.hits}),
+        sorted({gmap[s][e] for s, p in enumerate(parts) for e in p.hits if e >= 0}),
         np.zeros((0, 0, 0), complex),
         {gmap[s][e] for s, p in enumerate(parts) for e in p.driving},
         {},
@@ -414,7 +414,7 @@ def setup_node_shapes(table: xr.Dataset, records: xr.Dataset, *,
     scat_sum = np.zeros((m_modes, n_ent))
     scat_n = np.zeros((m_modes, n_ent))
     for s, p in enumerate(parts):
-        for e, c in p.hit_counts.items():
+        for e, c in p.hit_counts.items():  # named hit nodes only (UNNAMED has no count)
             union.hit_counts[gmap[s][e]] = union.hit_counts.get(gmap[s][e], 0) + c
         if p.hit_scatter is not None:
             for e in range(len(p.labels)):

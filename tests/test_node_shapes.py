@@ -494,3 +494,17 @@ def test_property_rank_one_residues_give_psi_psi_exactly():
         assert err <= 1e-9 * np.max(np.abs(want))
 
     check()
+
+
+def test_setups_with_an_unlabelled_fixed_hammer():
+    """Roving sensors, the hammer point not named in the records: the glued shape over the
+    sensor nodes (MAC >= 0.99 against eig), no scale (no driving point can be claimed)."""
+    sets = [ds.drop_vars(["excitation_node", "excitation_direction"]) for ds in _three_setups()]
+    res = fit_setups(sets, names=["A", "B", "C"])
+    assert res["node"].values.tolist() == NODES
+    assert res["node_role"].values.tolist() == ["sensor"] * N_DOF
+    assert np.all(np.isnan(res["modal_mass_kg"].values))
+    assert all("no driving point" in s for s in res["node_shape_status"].values)
+    for k in range(res.sizes["mode"]):
+        r = int(np.argmin(np.abs(TRUTH["frequency_hz"] - float(res["frequency_hz"][k]))))
+        assert mac(_complex_shape(res, k), TRUTH["shape"][:, r]) >= 0.99
