@@ -82,6 +82,7 @@ NODE_ROLES = ("sensor", "hit", "both", "driving point")
 _SI_POWER = {"m": 0, "m/s": 1, "ms^-1": 1, "m/s^2": 2, "m/s²": 2, "ms^-2": 2, "m/s/s": 2,
              "m/s**2": 2}
 _QUANTITY = {0: "displacement", 1: "velocity", 2: "acceleration"}
+_NO_DRIVING = "no driving point (no hit node and direction equal to a sensor's)"
 
 
 def dof_of(node: Any, direction: Any = "") -> tuple[str, str, float]:
@@ -432,7 +433,7 @@ def shape_variables(
         if not (lam.imag > 0):
             why.append("mode does not oscillate (damping ratio >= 1)")
         if not driving:
-            why.append("no driving point (no hit node and direction equal to a sensor's)")
+            why.append(_NO_DRIVING)
         elif not bool(absolute[k]):
             why.append("driving-point residue zero or not finite: no scale")
         if why:
@@ -483,6 +484,15 @@ def node_dataset(rs: ResidueSet, psi: np.ndarray, absolute: np.ndarray, notes: S
     dv = shape_variables(psi, absolute, notes, np.asarray(table["frequency_hz"].values, float),
                          np.asarray(table["damping_ratio"].values, float),
                          response_units=resp_u, force_units=force_u, driving=bool(rs.driving))
+    roles = list(roles or _roles(rs))
+    both = [rs.labels[e] for e, r in enumerate(roles) if r == "both"]
+    if both and not rs.driving:  # say what would make a driving point
+        hint = (f"no driving point (node {both[0]} is sensed and hit, but the direction of "
+                "one of them is not stated: give the channel's direction and the hits' "
+                "excitation_direction)")
+        dv["node_shape_status"] = ("mode", np.array(
+            [str(t).replace(_NO_DRIVING, hint) for t in dv["node_shape_status"][1]],
+            dtype=object))
     counts = np.array([rs.hit_counts.get(e, 0) for e in range(len(rs.labels))], np.int64)
     dv["node_hit_count"] = ("node", counts, {"description": "accepted hits at the node"})
     if rs.hit_scatter is not None:
@@ -496,7 +506,7 @@ def node_dataset(rs: ResidueSet, psi: np.ndarray, absolute: np.ndarray, notes: S
         "node_name": ("node", np.array(rs.names, dtype=object)),
         "node_direction": ("node", np.array([f"+{a}" if a else "" for a in rs.axes], dtype=object),
                            {"description": "the axis each value is along (positive sense)"}),
-        "node_role": ("node", np.array(list(roles or _roles(rs)), dtype=object)),
+        "node_role": ("node", np.array(roles, dtype=object)),
     }
     return xr.Dataset(dv, coords=coords)
 

@@ -508,3 +508,17 @@ def test_setups_with_an_unlabelled_fixed_hammer():
     for k in range(res.sizes["mode"]):
         r = int(np.argmin(np.abs(TRUTH["frequency_hz"] - float(res["frequency_hz"][k]))))
         assert mac(_complex_shape(res, k), TRUTH["shape"][:, r]) >= 0.99
+
+
+def test_hits_without_direction_at_the_sensor_node():
+    """Hits at the sensor's node but no excitation_direction: the node is 'both' (the shape
+    is still glued there), no driving point is claimed, and the status says what to add."""
+    rec = _records(sensors=[4], hit_nodes=range(N_DOF), hits_per_node=1)
+    res = modalnb.fit_modes(rec.drop_vars("excitation_direction"))
+    assert res["node_role"].values.tolist() == ["hit"] * 4 + ["both"]
+    assert all("node m5 is sensed and hit" in s and "excitation_direction" in s
+               for s in res["node_shape_status"].values)
+    assert np.all(np.isnan(res["modal_mass_kg"].values))
+    for k in range(res.sizes["mode"]):
+        r = int(np.argmin(np.abs(TRUTH["frequency_hz"] - float(res["frequency_hz"][k]))))
+        assert mac(_complex_shape(res, k), TRUTH["shape"][:, r]) >= 0.99
