@@ -164,8 +164,11 @@ def combine_setups(records_list: Sequence[xr.Dataset], *,
     """One record set of several setups' hits (layout in the module docstring).
 
     The setups must share the sample rate, the start time of their records, the response
-    and force units and whether force is recorded; records of different lengths are cut to
-    the shortest. Anything else is a one-line :class:`SetupError` naming the setup.
+    and force units, whether force is recorded and the acquisition attributes
+    (``exponential_window_tau_s``, ``full_scale``, ``force_full_scale``); records of
+    different lengths are cut to the shortest. Anything else is a one-line
+    :class:`SetupError` naming the setup. Per-channel coords (``full_scale``, ``x, y, z``)
+    are not carried over to the slots (their values differ between setups).
 
     Examples
     --------
@@ -209,6 +212,12 @@ def combine_setups(records_list: Sequence[xr.Dataset], *,
             raise SetupError(f"setup {name!r}: response units "
                              f"{ds['response'].attrs.get('units')!r} differ from {units!r} of "
                              f"setup {name0!r}.")
+        for key in ("exponential_window_tau_s", "full_scale", "force_full_scale"):
+            a, b = first.attrs.get(key), ds.attrs.get(key)
+            if (a is None) != (b is None) or (a is not None and float(a) != float(b)):
+                raise SetupError(f"setup {name!r}: attribute {key} = {b!r} differs from {a!r} of "
+                                 f"setup {name0!r}. Hint: setups fitted together share the "
+                                 "acquisition settings.")
         if with_force and str(ds["force"].attrs.get("units", "")) != f_units:
             raise SetupError(f"setup {name!r}: force units {ds['force'].attrs.get('units')!r} "
                              f"differ from {f_units!r} of setup {name0!r}.")
@@ -237,7 +246,8 @@ def combine_setups(records_list: Sequence[xr.Dataset], *,
         "excitation_node": np.array(exc_node, dtype=object),
         "excitation_direction": np.array(exc_dir, dtype=object),
     }
-    attrs = {k: v for k, v in first.attrs.items() if k in ("exponential_window_tau_s",)}
+    attrs = {k: v for k, v in first.attrs.items()
+             if k in ("exponential_window_tau_s", "full_scale", "force_full_scale")}
     attrs["setups"] = json.dumps(meta)
     return build_records(
         np.concatenate(resp), np.asarray(first["time"].values, float)[:n_time],

@@ -294,6 +294,10 @@ def test_setup_errors_are_one_line(tmp_path):
     other.attrs["sample_rate"] = 2 * FS
     with pytest.raises(SetupError, match=r"setup 'B': sample rate 4096 Hz differs"):
         combine_setups([sets[0], other], names=["A", "B"])
+    windowed = sets[2].assign_attrs(exponential_window_tau_s=0.5)
+    with pytest.raises(SetupError, match=r"setup 'C': attribute exponential_window_tau_s = 0.5 "
+                                         r"differs from None of setup 'A'"):
+        combine_setups([sets[0], sets[1], windowed], names=["A", "B", "C"])
     # manifests
     (tmp_path / "a.nc").write_bytes(b"")
     cases = {
