@@ -8,6 +8,8 @@ Headless core (never imports ipywidgets or plotly):
 * estimation: :func:`fit_modes` (one scripted fit), :class:`ModeFit` (repeated refits),
   :func:`mac`, :func:`mac_matrix`, :func:`mpc`, :func:`cross_checks`,
   :func:`modal_conversions`
+* shapes over nodes (roving hammer, several setups): :func:`node_shapes`,
+  :func:`fit_setups`, :func:`combine_setups`, :func:`read_setup_manifest`
 * FRFs: :func:`frf` (measured, with coherence), :func:`synthesise_frf` (of the modal
   table), :func:`write_frf` (``frf.nc``)
 * model against test: :func:`pair_modes` (MAC and frequency pairing with a model's modes)
@@ -19,7 +21,7 @@ Headless core (never imports ipywidgets or plotly):
   :func:`format_quantity` (times, dB, frequencies, damping, ... with sensible digits)
 * errors: :class:`ModalnbError` and its subclasses :class:`RecordError`,
   :class:`RecordFileNotFoundError`, :class:`EstimationError`, :class:`RecipeError`,
-  :class:`RecipeFileNotFoundError`, :class:`OptionError`; warnings derive from
+  :class:`RecipeFileNotFoundError`, :class:`OptionError`, :class:`SetupError`; warnings derive from
   :class:`ModalnbWarning`
 
 Widgets live in :mod:`modalnb.widgets` (imported only when asked for); benchmark and test
@@ -39,6 +41,7 @@ from ._errors import (
     RecipeFileNotFoundError,
     RecordError,
     RecordFileNotFoundError,
+    SetupError,
 )
 from ._numbers import format_quantity, format_with_uncertainty
 from .campaign import fit_campaign
@@ -48,11 +51,13 @@ from .export import write_frf, write_modal_table
 from .fitting import ModeFit, fit_modes
 from .frf import frf, synthesise_frf
 from .io import open_records, save_records, segment_recording
+from .node_shapes import node_shapes
 from .pairing import pair_modes
 from .pipeline import run_recipe
 from .recipe import Recipe, load_recipe, package_version, save_recipe
 from .records import records_checksum, records_from_arrays, validate_records
 from .session import Analysis
+from .setups import combine_setups, fit_setups, read_setup_manifest
 
 __version__ = package_version()
 
@@ -77,6 +82,11 @@ __all__ = (
     "mpc",
     "cross_checks",
     "modal_conversions",
+    # shapes over nodes
+    "node_shapes",
+    "fit_setups",
+    "combine_setups",
+    "read_setup_manifest",
     # FRFs
     "frf",
     "synthesise_frf",
@@ -104,5 +114,6 @@ __all__ = (
     "RecipeError",
     "RecipeFileNotFoundError",
     "OptionError",
+    "SetupError",
     "ModalnbWarning",
 )

@@ -11,7 +11,7 @@ from collections.abc import Mapping
 
 __all__ = ["ModalnbError", "RecordError", "RecordFileNotFoundError", "EstimationError",
            "NoAcceptedHitsError", "RecipeError", "RecipeFileNotFoundError", "OptionError",
-           "ModalnbWarning", "RecipeAutosaveWarning", "RecipeConflictWarning",
+           "SetupError", "ModalnbWarning", "RecipeAutosaveWarning", "RecipeConflictWarning",
            "OtherRecordsWarning"]
 
 
@@ -71,6 +71,10 @@ class RecipeFileNotFoundError(RecipeError, FileNotFoundError):
 
 class OptionError(ModalnbError):
     """An option (keyword argument) is unknown or has a value of the wrong type or range."""
+
+
+class SetupError(ModalnbError):
+    """Several setups (record sets) cannot be fitted or glued together as given."""
 
 
 class ModalnbWarning(UserWarning):

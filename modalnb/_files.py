@@ -56,6 +56,7 @@ OUTPUT_FILES: tuple[str, ...] = (
     "modes.csv",
     "shapes.csv",
     "hits.csv",
+    "node_shapes.csv",
     "poles_set_aside.csv",
     "modes.nc",
     "modes.json",

@@ -289,7 +289,23 @@ def _recipe_digest(recipe_json: str) -> str:
 
 # --------------------------------------------------------------------------- one set
 def _summary(table: xr.Dataset) -> dict[str, Any]:
-    """What the campaign needs of a set's modal table (small: modes x channels)."""
+    """What the campaign needs of a set's modal table (small: modes x channels).
+
+    A table with shapes over nodes (a roving-hammer set) gives those instead, over its
+    nodes (a node without a value counts as 0 in the MAC)."""
+    if "node_shape_amplitude" in table.data_vars:
+        amp = np.nan_to_num(np.asarray(table["node_shape_amplitude"].values, float))
+        ph = np.nan_to_num(np.asarray(table["node_shape_phase_deg"].values, float))
+        shapes = amp * np.exp(1j * np.deg2rad(ph))
+        return {
+            "frequency_hz": np.asarray(table["frequency_hz"].values, float),
+            "damping_ratio": np.asarray(table["damping_ratio"].values, float),
+            "frequency_hz_std": np.asarray(table["frequency_hz_std"].values, float),
+            "damping_ratio_std": np.asarray(table["damping_ratio_std"].values, float),
+            "mode": [int(m) for m in np.asarray(table["mode"].values).tolist()],
+            "channel": [str(c) for c in np.asarray(table["node"].values).tolist()],
+            "shapes": shapes,
+        }
     amp = np.asarray(table["shape_amplitude"].values, float) if "shape_amplitude" in table else None
     ph = np.asarray(table["shape_phase_deg"].values, float) if "shape_phase_deg" in table else None
     shapes = amp * np.exp(1j * np.deg2rad(ph)) if amp is not None and ph is not None else None

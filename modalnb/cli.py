@@ -197,6 +197,8 @@ def _recipe_from_args(args: argparse.Namespace, records: Any, base: Any = None):
                                        **_thresholds_from_args(args.threshold)}
     if getattr(args, "source", None):
         changes["source"] = args.source
+    if getattr(args, "reference_channel", None):
+        changes["reference_channels"] = list(args.reference_channel)
     recipe = recipe_for(records, base, **changes)
     if recipe.replayed_on_checksum:  # the recipe keeps its own checksum (provenance)
         print(
@@ -243,7 +245,7 @@ def _named(source: str) -> Iterator[None]:
 
 
 def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: str,
-                   more: Any = None) -> Any:
+                   more: Any = None, post: Any = None) -> Any:
     from .export import write_modal_table
     from .pipeline import run_recipe
 
@@ -253,6 +255,8 @@ def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: s
 
         warnings.simplefilter("ignore", OtherRecordsWarning)
         result, checks = run_recipe(records, recipe, progress=steps)
+        if post is not None:
+            result = post(result)
     from .export import write_report
 
     def report(path: Path) -> None:
@@ -275,15 +279,54 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     base = _base_recipe(args)
     steps = _Steps(args.quiet)
     steps("reading records")
-    ds = _open(args)
+    post = None
+    if getattr(args, "setups", False):
+        ds, post = _open_setups(args, base)
+    else:
+        if getattr(args, "reference_channel", None):
+            raise _BadOption("--reference-channel needs --setups (several setups to glue).")
+        ds = _open(args)
     args.source = ", ".join(args.records)
     with _named(args.source):
         recipe = _recipe_from_args(args, ds, base)
-    result, _ = _fit_and_write(ds, recipe, out, steps, title=f"modalnb: {args.source}")
+    result, _ = _fit_and_write(ds, recipe, out, steps, title=f"modalnb: {args.source}",
+                               post=post)
     print(format_modal_table(result))
-    print(f"wrote modes.csv, shapes.csv, hits.csv, poles_set_aside.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
+    print(f"wrote modes.csv, shapes.csv, hits.csv, node_shapes.csv, poles_set_aside.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
     print(CAUTION)
     return 0
+
+
+def _open_setups(args: argparse.Namespace, base: Any = None) -> tuple[Any, Any]:
+    """The setups of ``fit --setups`` as one record set, and the gluing step after the fit."""
+    from .io import open_records
+    from .setups import combine_setups, read_setup_manifest, setup_node_shapes
+
+    paths = list(args.records)
+    if len(paths) == 1 and paths[0].lower().endswith(".csv"):
+        listed = read_setup_manifest(paths[0])
+        names = [n for n, _ in listed]
+        files = [str(p) for _, p in listed]
+    else:
+        names = [Path(p).stem for p in paths]
+        if len(set(names)) != len(names):
+            names = [f"setup{i + 1}" for i in range(len(paths))]
+        files = paths
+    sets = []
+    for f in files:
+        with _named(f):
+            sets.append(open_records(f, **_reader_options(args)))
+    combined = combine_setups(sets, names=names)
+    refs = getattr(args, "reference_channel", None) or (base.reference_channels if base else None)
+
+    def post(result: Any) -> Any:
+        return setup_node_shapes(result, combined, reference_channels=refs)
+
+    from .setups import _check_glue, _meta_of, _reference_keys
+
+    meta = _meta_of(combined)
+    _check_glue(meta, _reference_keys(meta, refs))  # before the fit: fail fast
+    return combined, post
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
@@ -308,7 +351,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     print(format_modal_table(result))
     print()
     print(_truth_comparison(result, truth))
-    print(f"wrote modes.csv, shapes.csv, hits.csv, poles_set_aside.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
+    print(f"wrote modes.csv, shapes.csv, hits.csv, node_shapes.csv, poles_set_aside.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
     print(CAUTION)
     return 0
 
@@ -545,6 +588,14 @@ def build_parser() -> argparse.ArgumentParser:
     _add_reader_args(pf)
     _add_fit_args(pf)
     pf.add_argument("--out", required=True, help="output folder (created or updated)")
+    gs = pf.add_argument_group("several setups (roving sensors)")
+    gs.add_argument("--setups", action="store_true",
+                    help="the record files are setups, one record set each (or one CSV setup "
+                         "manifest: columns setup,records): one fit with poles shared over "
+                         "every setup, shapes glued through the reference sensors")
+    gs.add_argument("--reference-channel", dest="reference_channel", action="append",
+                    metavar="NAME", help="a reference sensor's channel name (repeat for "
+                    "several; default: every node and direction sensed in more than one setup)")
     pf.set_defaults(func=_cmd_fit)
 
     pd = sub.add_parser("demo", help="run the main job on the bundled example campaign")

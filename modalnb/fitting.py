@@ -32,6 +32,7 @@ from ._errors import EstimationError, NoAcceptedHitsError, OtherRecordsWarning
 from .checks import check_hits
 from .estimate import SharedPoleFit, with_cross_checks
 from .estimate._fit import accept_decisions
+from .node_shapes import with_node_shapes
 from .recipe import Recipe, load_recipe, package_version, replay_note
 from .records import validate_records
 
@@ -150,7 +151,10 @@ def finish_table(
     Adds to the engine's table the damping cross-checks (computed on `records`, the
     records the engine saw; :func:`modalnb.estimate.with_cross_checks`), the hit checks'
     ``hit_reason`` and ``hit_warnings``, the recipe that replays the fit
-    (``attrs["recipe"]``, JSON) and ``attrs["modalnb_version"]``.
+    (``attrs["recipe"]``, JSON) and ``attrs["modalnb_version"]``. For a roving-hammer
+    record set (hits at more than one node) also the shapes over nodes
+    (:func:`modalnb.node_shapes.with_node_shapes`: ``node_shape_amplitude``,
+    ``node_shape_phase_deg``, ``node_shape_mass_normalised`` over (mode, node), ...).
 
     Examples
     --------
@@ -161,6 +165,7 @@ def finish_table(
     """
     if records is not None:
         table = with_cross_checks(records, table)
+        table = with_node_shapes(table, records)
     table = table.assign(
         hit_reason=("hit", [str(r) for r in checks["reason"].values]),
         hit_warnings=("hit", [str(w) for w in checks["warnings"].values]),
@@ -469,7 +474,13 @@ def fit_modes(
         :mod:`modalnb.estimate._select`): ``aside_frequency_hz``, ``aside_damping_ratio``,
         ``aside_frequency_hz_std``, ``aside_energy``, ``aside_reason``. Over hit: ``hit_accepted``, ``hit_reason``, ``hit_warnings`` (of
         the hit checks). The damping cross-checks of :func:`modalnb.estimate.cross_checks`
-        (``xcheck_*``, each with its known bias in the attrs). Attributes: ``recipe`` (JSON
+        (``xcheck_*``, each with its known bias in the attrs). For a roving-hammer record
+        set (hits' ``excitation_node`` naming more than one node): the shapes over nodes of
+        :func:`modalnb.node_shapes` (``node_shape_amplitude``, ``node_shape_phase_deg``,
+        ``node_shape_mass_normalised`` over (mode, node); ``node_shape_mpc``,
+        ``modal_mass_kg``, ``node_shape_status`` over mode; coords ``node_direction``,
+        ``node_role``), the hits' excitation coords, and the channel coord ``node`` renamed
+        ``channel_node``. Attributes: ``recipe`` (JSON
         that replays the call), ``settings`` (JSON; ``fit_quality`` says whether the model
         fits the data), ``band``, ``window``,
         ``input_checksum``, ``modalnb_version``.

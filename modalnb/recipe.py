@@ -133,6 +133,10 @@ class Recipe:
     correct_exponential_window : bool
         Remove the damping added by the acquisition's exponential window (when the
         records say one was applied).
+    reference_channels : list of str or None
+        Several setups only (:func:`modalnb.fit_setups`): the channel names of the
+        reference sensors that glue the setups' shapes; None = every node and direction
+        sensed in more than one setup. Written to the JSON only when set.
     records_checksum : str or None
         Checksum of the records the recipe was made on (:func:`modalnb.records_checksum`).
         A replay on other records keeps it.
@@ -161,6 +165,7 @@ class Recipe:
     hit_overrides: dict[int, bool] = field(default_factory=dict)
     check_thresholds: dict[str, Any] = field(default_factory=dict)
     correct_exponential_window: bool = True
+    reference_channels: list[str] | None = None
     records_checksum: str | None = None
     replayed_on_checksum: str | None = None
     source: str | None = None
@@ -191,6 +196,13 @@ class Recipe:
         self.hit_overrides = overrides
         self.check_thresholds = _thresholds(self.check_thresholds)
         self.correct_exponential_window = _as_bool(self.correct_exponential_window, "correct_exponential_window")
+        if self.reference_channels is not None:
+            refs = self.reference_channels
+            if (isinstance(refs, (str, bytes)) or not isinstance(refs, (list, tuple))
+                    or not refs or not all(isinstance(c, str) and c.strip() for c in refs)):
+                raise RecipeError("recipe `reference_channels` must be a non-empty list of "
+                                  f"channel names or null, was {refs!r}.")
+            self.reference_channels = [str(c) for c in refs]
         self.records_checksum = _optional_text("records_checksum", self.records_checksum)
         self.replayed_on_checksum = _optional_text("replayed_on_checksum", self.replayed_on_checksum)
         self.source = _optional_text("source", self.source)
@@ -206,6 +218,8 @@ class Recipe:
         d["band"] = list(self.band) if self.band else None
         d["window"] = list(self.window) if self.window else None
         d["hit_overrides"] = {str(k): v for k, v in sorted(self.hit_overrides.items())}
+        if self.reference_channels is None:  # a one-setup recipe keeps its old form
+            del d["reference_channels"]
         return {"format": RECIPE_FORMAT, "version": RECIPE_VERSION, **d}
 
     def to_json(self) -> str:
@@ -400,7 +414,7 @@ def load_recipe(path: str | os.PathLike[str]) -> Recipe:
 #: The fields that are the user's choices (merged field by field when two sessions write
 #: one recipe file); the others are provenance, written by whoever writes.
 CHOICE_FIELDS = ("band", "window", "n_modes", "add_modes", "drop_modes", "hit_overrides",
-                 "check_thresholds", "correct_exponential_window", "notes")
+                 "check_thresholds", "correct_exponential_window", "reference_channels", "notes")
 _KEYED = ("hit_overrides", "check_thresholds")  # merged key by key
 _SETS = ("add_modes", "drop_modes")  # merged element by element
 

@@ -14,7 +14,6 @@ Outside truths:
 
 from __future__ import annotations
 
-import importlib.util
 import math
 import warnings
 
@@ -120,11 +119,6 @@ def test_geometry_files_cover_every_node(tmp_path, roving):
     assert np.all(np.abs(pair["frequency_difference_pct"].values) < 0.01)
 
 
-NODE_SHAPES = importlib.util.find_spec("modalnb.node_shapes") is not None
-
-
-@pytest.mark.skipif(not NODE_SHAPES, reason="node shapes over hit nodes (modalnb.node_shapes, "
-                    "branch wave4-rove) are not merged yet; the coordinator removes this skip")
 def test_node_shapes_and_scaled_shapes_match_the_fe_truth(roving):
     """MAC >= 0.99 against the FE shapes over every node; mass-normalised shapes within 5 %.
 
@@ -132,11 +126,20 @@ def test_node_shapes_and_scaled_shapes_match_the_fe_truth(roving):
     issue 12 §1), so the truth value at a '-X' node is negated back to +X here.
     """
     _, truth, _, result = roving
-    nodes = [str(n) for n in result["node"].values]
+    nodes = [str(n) for n in result["node_name"].values]
     dirs = [str(d) for d in result["node_direction"].values]
+
+    def along_table_axis(shape: dict, node: str, direction: str) -> float:
+        # the truth is keyed by the direction struck or sensed ('n19-X'); the table is along
+        # the positive axis of that direction ('+X'): a '-' key is negated back
+        axis = direction.lstrip("+-")
+        if f"{node}+{axis}" in shape:
+            return shape[f"{node}+{axis}"]
+        return -shape[f"{node}-{axis}"]
+
     for m in truth["modes"]:
         k = int(np.argmin(np.abs(result["frequency_hz"].values - m["frequency_hz"])))
-        phi = np.array([(-1.0 if d.startswith("-") else 1.0) * m["mass_normalised_shape"][f"{n}{d}"]
+        phi = np.array([along_table_axis(m["mass_normalised_shape"], n, d)
                         for n, d in zip(nodes, dirs, strict=True)])
         psi = (result["node_shape_amplitude"].values[k]
                * np.exp(1j * np.deg2rad(result["node_shape_phase_deg"].values[k])))

@@ -47,7 +47,7 @@ def _result() -> xr.Dataset:
 def test_files_columns_and_values(tmp_path):
     res = _result()
     files = write_modal_table(res, tmp_path / "out", recipe=Recipe(n_modes=2))
-    assert sorted(files) == sorted(["modes.csv", "shapes.csv", "hits.csv", "poles_set_aside.csv", "modes.nc", "modes.json", "recipe.json"])
+    assert sorted(files) == sorted(["modes.csv", "shapes.csv", "hits.csv", "node_shapes.csv", "poles_set_aside.csv", "modes.nc", "modes.json", "recipe.json"])
     # Python's csv module as the independent reader
     with open(tmp_path / "out" / "modes.csv", newline="") as fh:
         rows = list(csv.reader(fh))

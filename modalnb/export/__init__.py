@@ -18,6 +18,9 @@ Files written by :func:`write_modal_table` (the contract other tools rely on):
 * ``shapes.csv`` — ``mode,channel,amplitude,phase_deg``, then the other per-(mode, channel)
   quantities;
 * ``hits.csv``   — ``hit,accepted,reason,warnings`` (``accepted`` is ``true``/``false``);
+* ``node_shapes.csv`` — ``mode,node,node_name,direction,role,amplitude,phase_deg,
+  mass_normalised_kg^-1/2`` (shapes over nodes of a roving or several-setup table; header
+  only without them);
 * ``poles_set_aside.csv`` — ``pole,frequency_hz,damping_ratio,frequency_hz_std,energy,reason``
   (the residual terms that are not modes; :mod:`._aside`);
 * ``modes.nc`` (the result Dataset), ``modes.json`` (everything above), ``recipe.json``.

@@ -20,11 +20,15 @@ __all__ = [
     "modes_rows",
     "shapes_rows",
     "hits_rows",
+    "NODE_SHAPE_COLUMNS",
+    "node_shapes_rows",
 ]
 
 MODE_COLUMNS = ("mode", "frequency_hz", "damping_ratio", "frequency_hz_std", "damping_ratio_std", "regime")
 SHAPE_COLUMNS = ("mode", "channel", "amplitude", "phase_deg")
 HIT_COLUMNS = ("hit", "accepted", "reason", "warnings")
+NODE_SHAPE_COLUMNS = ("mode", "node", "node_name", "direction", "role", "amplitude", "phase_deg",
+                      "mass_normalised_kg^-1/2")
 
 #: The caution carried by every report and export.
 CAUTION = (
@@ -76,6 +80,29 @@ def modes_rows(result: xr.Dataset) -> list[dict[str, Any]]:
 def shapes_rows(result: xr.Dataset) -> list[dict[str, Any]]:
     """One dict per (mode, channel), columns in the order of ``shapes.csv``."""
     return _rows(result, ("mode", "channel"), SHAPE_COLUMNS, _SHAPE_RENAME)
+
+
+_NODE_RENAME = {"node_shape_amplitude": "amplitude", "node_shape_phase_deg": "phase_deg",
+                "node_shape_mass_normalised": "mass_normalised_kg^-1/2"}
+
+
+def node_shapes_rows(result: xr.Dataset) -> list[dict[str, Any]]:
+    """One dict per (mode, node) of the shapes over nodes, columns in the order of
+    ``node_shapes.csv`` (none when the table has no shapes over nodes)."""
+    if "node_shape_amplitude" not in result.data_vars:
+        return []
+    rows = _rows(result, ("mode", "node"), NODE_SHAPE_COLUMNS, _NODE_RENAME)
+    extra = {"node_name": "node_name", "direction": "node_direction", "role": "node_role"}
+    index = {str(n): j for j, n in enumerate(result["node"].values.tolist())}
+    for row in rows:
+        j = index[str(row["node"])]
+        ordered = {"mode": row["mode"], "node": row["node"]}
+        for col, coord in extra.items():
+            ordered[col] = _value(result[coord].values[j]) if coord in result.coords else ""
+        ordered.update({k: v for k, v in row.items() if k not in ("mode", "node")})
+        row.clear()
+        row.update(ordered)
+    return rows
 
 
 def hits_rows(result: xr.Dataset, checks: xr.Dataset | None = None) -> list[dict[str, Any]]:

@@ -7,6 +7,9 @@ Files written by :func:`write_modal_table` (the contract other tools rely on):
 * ``shapes.csv`` — ``mode,channel,amplitude,phase_deg``, then the other per-(mode, channel)
   quantities;
 * ``hits.csv``   — ``hit,accepted,reason,warnings`` (``accepted`` is ``true``/``false``);
+* ``node_shapes.csv`` — ``mode,node,node_name,direction,role,amplitude,phase_deg,
+  mass_normalised_kg^-1/2``: the shapes over nodes of a roving-hammer or several-setup
+  table (:mod:`modalnb.node_shapes`; always written, header only for a table without them);
 * ``poles_set_aside.csv`` — ``pole,frequency_hz,damping_ratio,frequency_hz_std,energy,reason``:
   the fitted poles that are residual terms, not modes (always written; header only when
   there are none);
@@ -38,11 +41,13 @@ from ._rows import (
     CAUTION,
     HIT_COLUMNS,
     MODE_COLUMNS,
+    NODE_SHAPE_COLUMNS,
     SHAPE_COLUMNS,
     _csv_cell,
     _json_safe,
     hits_rows,
     modes_rows,
+    node_shapes_rows,
     shapes_rows,
 )
 
@@ -115,10 +120,12 @@ def write_modal_table(
     """
     out = Path(out_dir)
     m_rows, s_rows, h_rows = modes_rows(result), shapes_rows(result), hits_rows(result, checks)
+    n_rows = node_shapes_rows(result)
     texts = {
         "modes.csv": _csv_text(m_rows, _columns(m_rows, MODE_COLUMNS)),
         "shapes.csv": _csv_text(s_rows, _columns(s_rows, SHAPE_COLUMNS)),
         "hits.csv": _csv_text(h_rows, list(HIT_COLUMNS)),
+        "node_shapes.csv": _csv_text(n_rows, _columns(n_rows, NODE_SHAPE_COLUMNS)),
         "poles_set_aside.csv": _csv_text(aside_rows(result), list(ASIDE_COLUMNS)),
         "modes.json": json.dumps(
             _json_safe(
@@ -128,6 +135,7 @@ def write_modal_table(
                     "modes": m_rows,
                     "shapes": s_rows,
                     "hits": h_rows,
+                    "node_shapes": n_rows,
                     "poles_set_aside": aside_rows(result),
                 }
             ),

@@ -16,7 +16,9 @@ def format_modal_table(result: xr.Dataset) -> str:
     """The modal table as aligned text with units in the header (for the terminal).
 
     When the fit set poles aside (residual terms, not modes), a second table
-    "Poles set aside (not modes)" follows with the reason for each.
+    "Poles set aside (not modes)" follows with the reason for each. A table with shapes
+    over nodes (roving hammer, several setups) is followed by them: per mode the modal
+    mass and phase collinearity, per node amplitude and phase of every mode.
 
     Examples
     --------
@@ -64,7 +66,38 @@ def format_modal_table(result: xr.Dataset) -> str:
                        _num(r["frequency_hz_std"], "{:.2g}"),
                        _num(r["damping_ratio"], "{:.4g}", 100), str(r["reason"])]
                       for r in aside])]
+    if "node_shape_amplitude" in result.data_vars:
+        lines += ["", *_node_lines(result)]
     return "\n".join(lines)
+
+
+def _node_lines(result: xr.Dataset) -> list[str]:
+    """The shapes over nodes as text (numbers through :mod:`modalnb._numbers`)."""
+    from .._numbers import format_quantity
+
+    def q(v: float, kind: str) -> str:
+        return "-" if not math.isfinite(v) else format_quantity(v, kind, unit=False)
+
+    modes = [str(_value(m)) for m in result["mode"].values]
+    per_mode = [[m, q(float(result["modal_mass_kg"].values[k]), "amplitude"),
+                 q(float(result["node_shape_mpc"].values[k]), "ratio"),
+                 str(_value(result["node_shape_status"].values[k]))]
+                for k, m in enumerate(modes)]
+    out = ["Shapes over nodes: modal mass of the unit-maximum shape, phase collinearity",
+           *_aligned(["mode", "modal mass [kg]", "MPC [-]", "node shape status"], per_mode), ""]
+    amp = result["node_shape_amplitude"].values
+    ph = result["node_shape_phase_deg"].values
+    rows = []
+    for j, node in enumerate(result["node"].values.tolist()):
+        role = str(_value(result["node_role"].values[j])) if "node_role" in result.coords else ""
+        d = str(_value(result["node_direction"].values[j])) if "node_direction" in result.coords else ""
+        rows.append([str(node), d, role] + [
+            "-" if not math.isfinite(float(amp[k, j])) else
+            f"{q(float(amp[k, j]), 'amplitude')} at {q(float(ph[k, j]), 'phase_deg')}°"
+            for k in range(len(modes))])
+    out += ["Node shapes: amplitude (largest 1) at phase [deg], direction signs applied",
+            *_aligned(["node", "dir", "role", *[f"mode {m}" for m in modes]], rows)]
+    return out
 
 
 def _num(v: object, fmt: str, scale: float = 1.0) -> str:
