@@ -23,7 +23,8 @@ Files written by :func:`write_modal_table` (the contract other tools rely on):
 * ``modes.nc`` (the result Dataset), ``modes.json`` (everything above), ``recipe.json``.
 
 :func:`write_frf` (:mod:`.frf_file`) writes an FRF Dataset as ``frf.nc`` (``frf_real``,
-``frf_imag``, ``coherence``, ...).
+``frf_imag``, ``coherence``, ...); :func:`frf_section_html` (:mod:`.frf_report`) is the
+report's FRF section (measured against model FRF and coherence, one HTML fragment).
 """
 
 from __future__ import annotations
@@ -38,6 +39,7 @@ from ._rows import (
     shapes_rows,
 )
 from .frf_file import write_frf
+from .frf_report import frf_section_html
 from .report import report_html, write_report
 from .table_files import write_modal_table
 from .terminal import format_modal_table
@@ -55,4 +57,5 @@ __all__ = [
     "write_report",
     "report_html",
     "write_frf",
+    "frf_section_html",
 ]
