@@ -61,6 +61,7 @@ OUTPUT_FILES: tuple[str, ...] = (
     "modes.json",
     "recipe.json",
     "report.html",
+    "frf.nc",
 )
 
 

@@ -260,7 +260,8 @@ def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: s
 
     steps("writing the modal table")
     # one set: the report is written beside the table and the folder replaced as a whole
-    write_modal_table(result, out, recipe=recipe, checks=checks, extra_files={"report.html": report})
+    write_modal_table(result, out, recipe=recipe, checks=checks, extra_files={"report.html": report},
+                      records=records)  # frf.nc too when the records carry force
     steps.done()
     return result, checks
 

@@ -575,7 +575,8 @@ class Analysis:
         report: bool = True,
         title: str | None = None,
     ) -> dict[str, Path]:
-        """Write the modal table files (CSV, netCDF, JSON, recipe) and/or ``report.html``.
+        """Write the modal table files (CSV, netCDF, JSON, recipe; ``frf.nc`` when the records
+        carry force) and/or ``report.html``.
 
         Returns
         -------
@@ -597,7 +598,7 @@ class Analysis:
         )} if report else {}
         if table:  # one set: the folder is replaced as a whole, the report with the table
             files.update(write_modal_table(self.result, out, recipe=self.recipe, checks=self.checks,
-                                           extra_files=extra))
+                                           extra_files=extra, records=self.records))
         elif extra:  # the report alone replaces only the report
             with replaced_folder(out, replaces=("report.html",)) as stage:
                 extra["report.html"](stage / "report.html")
