@@ -126,7 +126,7 @@ class CoherenceView(_View):
         self.channel.add_class("modalnb-coherence-channel")
         self.channel.observe(lambda ch: self.refresh(), "value")
         self.fig = figure(300, title="coherence of the accepted hits", xaxis_title="frequency [Hz]",
-                          yaxis={"title": "coherence", "range": [0, 1.05]})
+                          yaxis={"title": "coherence", "range": [0, 1.05]}, showlegend=True)
         self._box([w.HTML("<b>Coherence</b> of the accepted hits, per excitation point "
                           "(near 1: the hits agree; low: noise or a bad hit dominates)."),
                    self.channel, fig_box(self.fig, "modalnb-coherence-figure"), self.note])
