@@ -135,8 +135,11 @@ def frf_section_html(records: xr.Dataset, result: xr.Dataset) -> str:
         notes.append(f"{_e(both.attrs['coherence_note'])}.")
     parts = [f'<section class="modalnb-frf-section">{head}',
              "<p>Where the model follows the measured FRF around each peak, the table describes "
-             "the structure in the band; a coherence well below 1 marks frequencies where the "
-             "hits disagree (noise, a bad hit) and the measured FRF is not to be trusted.</p>",
+             "the structure in the band; between and beyond the peaks the model holds the fitted "
+             "modes only (no terms for modes outside the band, no mass line at a driving point), "
+             "so it may depart from the measurement there. A coherence well below 1 marks "
+             "frequencies where the hits disagree (noise, a bad hit) and the measured FRF is not "
+             "to be trusted.</p>",
              *(f"<p class='modalnb-frf-note'>{n}</p>" for n in notes)]
     for e, exc in enumerate(both["excitation"].values):
         for c, ch in enumerate(both["channel"].values):

@@ -193,7 +193,7 @@ class FrfCheckView(_View):
             subplot_titles=("magnitude", "phase")))
         self.fig.update_layout(height=480, template="plotly_white",
                                margin={"l": 60, "r": 20, "t": 50, "b": 40},
-                               legend={"orientation": "h", "y": 1.12})
+                               legend={"orientation": "h", "y": 1.12, "x": 1, "xanchor": "right"})
         for name, colour, row, legend in (("measured", PALETTE.measured, 1, True),
                                           ("model", PALETTE.model, 1, True),
                                           ("measured phase", PALETTE.measured, 2, False),
@@ -207,7 +207,9 @@ class FrfCheckView(_View):
         self._quiet = False
         self._box([w.HTML("<b>FRF: measured against the modal model.</b> Where the model "
                           "follows the measured FRF around each peak, the table describes the "
-                          "structure in the band."),
+                          "structure in the band. Between and beyond the peaks the model holds "
+                          "the fitted modes only (no terms for modes outside the band, no mass "
+                          "line at a driving point), so it may depart from the measurement there."),
                    w.HBox([self.excitation, self.channel]),
                    fig_box(self.fig, "modalnb-frfcheck-figure"), self.note])
         self.excitation.observe(lambda ch: self._draw(), "value")
@@ -298,14 +300,15 @@ class ModelPairingView(_View):
 
     def __init__(self, analysis: Analysis) -> None:
         super().__init__(analysis)
+        wide = {"description_width": "initial"}
         self.modes_csv = w.Text(description="model modes", placeholder="modes.csv: mode,frequency_hz",
-                                layout=w.Layout(width="48%"))
+                                style=wide, layout=w.Layout(width="48%"))
         self.modes_csv.add_class("modalnb-pairing-modes-csv")
         self.shapes_csv = w.Text(description="model shapes",
                                  placeholder="shapes.csv: mode,node,direction,value",
-                                 layout=w.Layout(width="48%"))
+                                 style=wide, layout=w.Layout(width="48%"))
         self.shapes_csv.add_class("modalnb-pairing-shapes-csv")
-        self.button = w.Button(description="compare with the model")
+        self.button = w.Button(description="compare with the model", layout=w.Layout(width="220px"))
         self.button.add_class("modalnb-pairing-compare")
         self.button.on_click(lambda _b: self.set_model((self.modes_csv.value.strip(),
                                                         self.shapes_csv.value.strip())))
