@@ -266,6 +266,13 @@ def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: s
     return result, checks
 
 
+def _written(out: Path) -> str:
+    """The files of the output set now in `out` (frf.nc only when the records carry force)."""
+    from ._files import OUTPUT_FILES
+
+    return ", ".join(n for n in OUTPUT_FILES if (out / n).is_file())
+
+
 def _cmd_fit(args: argparse.Namespace) -> int:
     from .export import CAUTION, format_modal_table
 
@@ -280,7 +287,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
         recipe = _recipe_from_args(args, ds, base)
     result, _ = _fit_and_write(ds, recipe, out, steps, title=f"modalnb: {args.source}")
     print(format_modal_table(result))
-    print(f"wrote modes.csv, shapes.csv, hits.csv, poles_set_aside.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
+    print(f"wrote {_written(out)} to {out}")
     print(CAUTION)
     return 0
 
@@ -307,7 +314,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     print(format_modal_table(result))
     print()
     print(_truth_comparison(result, truth))
-    print(f"wrote modes.csv, shapes.csv, hits.csv, poles_set_aside.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
+    print(f"wrote {_written(out)} to {out}")
     print(CAUTION)
     return 0
 
