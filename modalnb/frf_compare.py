@@ -23,6 +23,7 @@ import numpy as np
 import xarray as xr
 
 from ._errors import ModalnbError
+from ._numbers import format_quantity
 from .frf import frf, synthesise_frf
 
 __all__ = ["compare_frf", "model_frf_for", "frf_label"]
@@ -37,14 +38,14 @@ def frf_label(measured: xr.Dataset) -> str:
     >>> frf_label(xr.Dataset(attrs={"estimator": "H1"}))
     'H1'
     >>> frf_label(xr.Dataset(attrs={"estimator": "H1", "exponential_window_tau_s": 0.5}))
-    'H1 of the exponentially windowed records (tau = 0.5 s; model with the window damping 1/tau added)'
+    'H1 of the exponentially windowed records (tau = 500 ms; model with the window damping 1/tau added)'
     """
     est = str(measured.attrs.get("estimator", "H1"))
     tau = measured.attrs.get("exponential_window_tau_s")
     if tau is None:
         return est
-    return (f"{est} of the exponentially windowed records (tau = {float(tau):.6g} s; model with "
-            "the window damping 1/tau added)")
+    return (f"{est} of the exponentially windowed records (tau = "
+            f"{format_quantity(float(tau), 'time')}; model with the window damping 1/tau added)")
 
 
 def _grouped(table: xr.Dataset) -> bool:

@@ -236,7 +236,7 @@ def test_windowed_records_labelled_and_model_carries_the_window(tmp_path):
     a = Analysis(ds)
     view = FrfCheckView(a)
     try:
-        assert "exponentially windowed" in view.note.value and "tau = 0.4 s" in view.note.value
+        assert "exponentially windowed" in view.note.value and "tau = 400 ms" in view.note.value
         measured = modalnb.frf(ds, accept=a.result)
         shifted = modalnb.synthesise_frf(a.result, measured, excitation="n40+Z", windowed=True)
         x, y = view.traces()["model"]
