@@ -62,6 +62,7 @@ OUTPUT_FILES: tuple[str, ...] = (
     "modes.json",
     "recipe.json",
     "report.html",
+    "frf.nc",
 )
 
 

@@ -266,9 +266,17 @@ def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: s
     steps("writing the modal table")
     # one set: the report is written beside the table and the folder replaced as a whole
     extra = {"report.html": report, **(more(result, checks) if more else {})}
-    write_modal_table(result, out, recipe=recipe, checks=checks, extra_files=extra)
+    write_modal_table(result, out, recipe=recipe, checks=checks, extra_files=extra,
+                      records=records)  # frf.nc too when the records carry force
     steps.done()
     return result, checks
+
+
+def _written(out: Path) -> str:
+    """The files of the output set now in `out` (frf.nc only when the records carry force)."""
+    from ._files import OUTPUT_FILES
+
+    return ", ".join(n for n in OUTPUT_FILES if (out / n).is_file())
 
 
 def _cmd_fit(args: argparse.Namespace) -> int:
@@ -292,7 +300,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     result, _ = _fit_and_write(ds, recipe, out, steps, title=f"modalnb: {args.source}",
                                post=post)
     print(format_modal_table(result))
-    print(f"wrote modes.csv, shapes.csv, hits.csv, node_shapes.csv, poles_set_aside.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
+    print(f"wrote {_written(out)} to {out}")
     print(CAUTION)
     return 0
 
@@ -351,7 +359,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     print(format_modal_table(result))
     print()
     print(_truth_comparison(result, truth))
-    print(f"wrote modes.csv, shapes.csv, hits.csv, node_shapes.csv, poles_set_aside.csv, modes.nc, modes.json, recipe.json, report.html to {out}")
+    print(f"wrote {_written(out)} to {out}")
     print(CAUTION)
     return 0
 

@@ -204,6 +204,11 @@ class Analysis:
         self._listeners: list[Listener] = []
         self._spectrum: tuple[tuple[int, ...], np.ndarray, np.ndarray] | None = None
         self._model_cache: tuple[tuple[int, int], Any] | None = None
+        self._frf_cache: tuple[Any, ...] | None = None
+        self._pair_cache: tuple[tuple[Any, Any], xr.Dataset] | None = None
+        #: the analysis model the test is compared with (:meth:`compare_with_model`), or None
+        self.test_model: xr.Dataset | None = None
+        self.test_model_source: str | None = None
         self._estimator: ModeFit | None = None
         self._estimator_key: Any = None
         #: True when :attr:`result` came from the fast refit (see :meth:`_fit`).
@@ -570,7 +575,8 @@ class Analysis:
         report: bool = True,
         title: str | None = None,
     ) -> dict[str, Path]:
-        """Write the modal table files (CSV, netCDF, JSON, recipe) and/or ``report.html``.
+        """Write the modal table files (CSV, netCDF, JSON, recipe; ``frf.nc`` when the records
+        carry force) and/or ``report.html``.
 
         Returns
         -------
@@ -592,7 +598,7 @@ class Analysis:
         )} if report else {}
         if table:  # one set: the folder is replaced as a whole, the report with the table
             files.update(write_modal_table(self.result, out, recipe=self.recipe, checks=self.checks,
-                                           extra_files=extra))
+                                           extra_files=extra, records=self.records))
         elif extra:  # the report alone replaces only the report
             with replaced_folder(out, replaces=("report.html",)) as stage:
                 extra["report.html"](stage / "report.html")
@@ -726,3 +732,85 @@ class Analysis:
         re = self.result["hit_residue_real"].sel(mode=mode, hit=hits).values
         im = self.result["hit_residue_imag"].sel(mode=mode, hit=hits).values
         return hits, mac_matrix((re + 1j * im).T)
+
+    # --- FRFs and the model against the test (modalnb.frf, modalnb.pair_modes) ---------
+    def measured_frf(self) -> xr.Dataset:
+        """H1 FRF and coherence per excitation over the hits the current result used.
+
+        :func:`modalnb.frf` with ``accept=`` the result's hit decisions; cached, and
+        computed again when the accepted hits change (the fit window does not enter: one
+        transform per hit over the whole record). Raises :class:`~modalnb.RecordError`
+        for records without force.
+
+        Examples
+        --------
+        >>> a = Analysis(load_demo())                 # doctest: +SKIP
+        >>> a.measured_frf()["coherence"].dims        # doctest: +SKIP
+        ('excitation', 'channel', 'frequency')
+        """
+        from .frf import frf
+
+        if self.result is None:
+            raise ModalnbError("no result yet: the fit has not succeeded.")
+        used = tuple(np.asarray(self.result["hit_accepted"].values, bool).tolist()
+                     if "hit_accepted" in self.result else self.accepted_hits())
+        c = self._frf_cache
+        if c is None or c[0] != used:
+            self._frf_cache = (used, frf(self.records, accept=self.result), None, None)
+        return self._frf_cache[1]
+
+    def model_frf(self) -> xr.Dataset:
+        """The current result's model FRF on the frequencies and excitations of
+        :meth:`measured_frf` (:func:`modalnb.frf_compare.model_frf_for`); cached, computed
+        again when the result changes (hits, window, band, modes). Exponentially windowed
+        records: the model carries the window's damping, as the measured FRF does.
+        Attribute ``model_note`` says where the table holds no model for an excitation."""
+        from .frf_compare import model_frf_for
+
+        measured = self.measured_frf()
+        c = self._frf_cache
+        assert c is not None
+        if c[2] is not self.result:
+            model, note = model_frf_for(measured, self.result)
+            model.attrs["model_note"] = note
+            self._frf_cache = (c[0], c[1], self.result, model)
+        return self._frf_cache[3]
+
+    def compare_with_model(self, model: Any) -> xr.Dataset:
+        """Keep an analysis model to compare the test with; return :meth:`model_pairing`.
+
+        Parameters
+        ----------
+        model : (modes_csv, shapes_csv) or xarray.Dataset
+            As :func:`modalnb.pair_modes` takes it; the CSV files are read once, now.
+        """
+        from .pairing import read_model_modes
+
+        if isinstance(model, (tuple, list)) and len(model) == 2:
+            source = f"{os.fspath(model[0])} + {os.fspath(model[1])}"
+            model = read_model_modes(*model)
+        elif isinstance(model, xr.Dataset):
+            source = "a model Dataset"
+        else:
+            raise ModalnbError("the model must be (modes_csv, shapes_csv) or an xarray.Dataset "
+                               "with frequency_hz(mode) and shape(mode, dof).")
+        pairing = self._pair_with(model)  # refuses a model sharing nothing with the test
+        self.test_model, self.test_model_source = model, source
+        return pairing
+
+    def model_pairing(self) -> xr.Dataset | None:
+        """:func:`modalnb.pair_modes` of the current result against :attr:`test_model`
+        (None when no model was given); computed again for every new result."""
+        if self.test_model is None:
+            return None
+        return self._pair_with(self.test_model)
+
+    def _pair_with(self, model: xr.Dataset) -> xr.Dataset:
+        from .pairing import pair_modes
+
+        if self.result is None:
+            raise ModalnbError("no result yet: the fit has not succeeded.")
+        cached = self._pair_cache
+        if cached is None or cached[0][0] is not self.result or cached[0][1] is not model:
+            self._pair_cache = ((self.result, model), pair_modes(self.result, model))
+        return self._pair_cache[1]

@@ -104,3 +104,30 @@ def test_terminal_table_aligned_with_units():
     assert lines[1].split()[1] == "12.3457" and lines[1].split()[3] == "1.23"
     # columns line up: every row starts its regime at the same offset
     assert len({line.index(w) for line, w in zip(lines[1:], ["underdamped", "overdamped"], strict=True)}) == 1
+
+
+def test_frf_nc_written_with_the_table_when_the_records_carry_force(tmp_path):
+    """frf.nc beside the table files: read back by the netCDF-C library's reader (netCDF4),
+    not by xarray, and compared with modalnb.frf / synthesise_frf of the same records."""
+    netCDF4 = pytest.importorskip("netCDF4")
+    import modalnb
+    from modalnb.demo import load_demo
+
+    ds = load_demo()
+    table = modalnb.fit_modes(ds)
+    files = write_modal_table(table, tmp_path / "out", records=ds)
+    assert "frf.nc" in files and files["frf.nc"].is_file()
+    with netCDF4.Dataset(files["frf.nc"]) as nc:
+        h = np.asarray(nc["frf_real"][:]) + 1j * np.asarray(nc["frf_imag"][:])
+        g = np.asarray(nc["model_frf_real"][:]) + 1j * np.asarray(nc["model_frf_imag"][:])
+        coh = np.asarray(nc["coherence"][:])
+        assert tuple(nc["frf_real"].dimensions) == ("excitation", "channel", "frequency")
+        excitation = list(nc["excitation"][:])
+    measured = modalnb.frf(ds, accept=table)
+    np.testing.assert_array_equal(h, measured["frf"].values)
+    np.testing.assert_array_equal(coh, measured["coherence"].values)
+    model = modalnb.synthesise_frf(table, measured, excitation=excitation[0])
+    np.testing.assert_array_equal(g, model["frf"].values)
+    # records without force: no FRF, no frf.nc (and an old one does not survive the replace)
+    files = write_modal_table(table, tmp_path / "out", records=ds.drop_vars("force"))
+    assert "frf.nc" not in files and not (tmp_path / "out" / "frf.nc").exists()

@@ -26,7 +26,8 @@ Files written by :func:`write_modal_table` (the contract other tools rely on):
 * ``modes.nc`` (the result Dataset), ``modes.json`` (everything above), ``recipe.json``.
 
 :func:`write_frf` (:mod:`.frf_file`) writes an FRF Dataset as ``frf.nc`` (``frf_real``,
-``frf_imag``, ``coherence``, ...).
+``frf_imag``, ``coherence``, ...); :func:`frf_section_html` (:mod:`.frf_report`) is the
+report's FRF section (measured against model FRF and coherence, one HTML fragment).
 
 :func:`write_shape_views` (:mod:`.shape_view`) writes ``shape_view.html``, the moving shape
 view on the structure's geometry; :func:`shape_section_html` is the same view as one HTML
@@ -45,6 +46,7 @@ from ._rows import (
     shapes_rows,
 )
 from .frf_file import write_frf
+from .frf_report import frf_section_html
 from .report import report_html, write_report
 from .shape_view import shape_section_html, shape_view_html, write_shape_views
 from .table_files import write_modal_table
@@ -66,4 +68,5 @@ __all__ = [
     "shape_view_html",
     "shape_section_html",
     "write_shape_views",
+    "frf_section_html",
 ]

@@ -2,8 +2,14 @@
 as netCDF4 that any netCDF reader opens.
 
 netCDF has no complex type, so the complex ``frf(excitation, channel, frequency)`` is
-written as two float64 variables, ``frf_real`` and ``frf_imag`` (same dims and units);
-every other variable (``coherence``, ``force_level_db``, ``n_hits``) as it is. String
+written as two float64 variables, ``frf_real`` and ``frf_imag`` (same dims and units), and
+so is every other complex variable (``model_frf`` -> ``model_frf_real``,
+``model_frf_imag``); every other variable (``coherence``, ``force_level_db``, ``n_hits``)
+as it is.
+
+:func:`write_table_frf` writes the ``frf.nc`` of an output folder (beside the modal
+table): the measured H1 and coherence over the table's accepted hits and the table's
+model FRF (:func:`modalnb.frf_compare.compare_frf`). String
 coordinates (``excitation``, ``channel``, ``node``, ``direction``) are variable-length
 strings; list attributes are numbers; the file is written atomically
 (:func:`modalnb._files.atomic_write_with`).
@@ -21,7 +27,7 @@ import xarray as xr
 from .._errors import ModalnbError
 from .._files import atomic_write_with
 
-__all__ = ["write_frf", "FRF_DIMS"]
+__all__ = ["write_frf", "write_table_frf", "FRF_DIMS"]
 
 #: Dims of the ``frf`` variable, in order.
 FRF_DIMS = ("excitation", "channel", "frequency")
@@ -38,16 +44,19 @@ def _attr(value: object) -> object:
 
 
 def _netcdf_ready(ds: xr.Dataset) -> xr.Dataset:
-    h = ds["frf"]
-    out = ds.drop_vars("frf").drop_encoding()
-    out["frf_real"] = (FRF_DIMS, np.real(h.values), {**h.attrs, "part": "real part of the FRF"})
-    out["frf_imag"] = (FRF_DIMS, np.imag(h.values), {**h.attrs, "part": "imaginary part of the FRF"})
+    complex_vars = [str(n) for n, v in ds.data_vars.items() if v.dtype.kind == "c"]
+    out = ds.drop_vars(complex_vars).drop_encoding()
+    for name in complex_vars:
+        h = ds[name]
+        out[f"{name}_real"] = (h.dims, np.real(h.values), {**h.attrs, "part": f"real part of {name}"})
+        out[f"{name}_imag"] = (h.dims, np.imag(h.values),
+                               {**h.attrs, "part": f"imaginary part of {name}"})
     for name in list(out.variables):
         if out[name].dtype.kind == "O":
             out[name] = out[name].astype(str)
         out[name].attrs = {k: _attr(v) for k, v in out[name].attrs.items()}
     out.attrs = {k: _attr(v) for k, v in ds.attrs.items()}
-    out.attrs["frf_parts"] = "frf = frf_real + 1j * frf_imag"
+    out.attrs["frf_parts"] = "; ".join(f"{n} = {n}_real + 1j * {n}_imag" for n in complex_vars)
     return out
 
 
@@ -105,3 +114,38 @@ def write_frf(ds: xr.Dataset, path: str | os.PathLike[str]) -> Path:
     except (OSError, TypeError, ValueError) as exc:
         raise ModalnbError(f"{src}: could not write the file ({type(exc).__name__}: {exc}).") from None
     return target
+
+
+def write_table_frf(records: xr.Dataset, result: xr.Dataset, path: str | os.PathLike[str]) -> Path:
+    """Write the ``frf.nc`` of an output folder: measured FRF, coherence and model FRF.
+
+    :func:`modalnb.frf_compare.compare_frf` of the records and their table (H1 over the
+    table's accepted hits; the table's model FRF on the same frequencies), written by
+    :func:`write_frf`: ``frf_real``, ``frf_imag``, ``model_frf_real``, ``model_frf_imag``,
+    ``coherence``, ``force_level_db``, ``n_hits``.
+
+    Parameters
+    ----------
+    records : xarray.Dataset
+        The record set, with ``force``.
+    result : xarray.Dataset
+        Its :func:`modalnb.fit_modes` table.
+    path : path-like
+        Target ``.nc`` file.
+
+    Returns
+    -------
+    pathlib.Path
+        `path`.
+
+    Examples
+    --------
+    >>> from modalnb.demo import load_demo                            # doctest: +SKIP
+    >>> import modalnb                                                # doctest: +SKIP
+    >>> ds = load_demo()                                              # doctest: +SKIP
+    >>> write_table_frf(ds, modalnb.fit_modes(ds), "frf.nc").name     # doctest: +SKIP
+    'frf.nc'
+    """
+    from ..frf_compare import compare_frf
+
+    return write_frf(compare_frf(records, result), path)

@@ -13,7 +13,10 @@ Files written by :func:`write_modal_table` (the contract other tools rely on):
 * ``poles_set_aside.csv`` — ``pole,frequency_hz,damping_ratio,frequency_hz_std,energy,reason``:
   the fitted poles that are residual terms, not modes (always written; header only when
   there are none);
-* ``modes.nc`` (the result Dataset), ``modes.json`` (everything above), ``recipe.json``.
+* ``modes.nc`` (the result Dataset), ``modes.json`` (everything above), ``recipe.json``;
+* ``frf.nc`` when the records are given and carry the hammer force: measured FRF (H1),
+  coherence and the table's model FRF, real and imaginary parts apart
+  (:func:`modalnb.export.frf_file.write_table_frf`).
 
 The folder is replaced as a whole (:func:`modalnb._files.replaced_folder`): the new set is
 written into a sibling folder and exchanged with the old one in one step, so a reader sees
@@ -94,6 +97,7 @@ def write_modal_table(
     recipe: Recipe | None = None,
     checks: xr.Dataset | None = None,
     extra_files: Mapping[str, Callable[[Path], object]] | None = None,
+    records: xr.Dataset | None = None,
 ) -> dict[str, Path]:
     """Write the modal table files into `out_dir` (created if needed), all or nothing.
 
@@ -112,6 +116,9 @@ def write_modal_table(
     extra_files : mapping of file name to writer, optional
         More files of the same set: ``writer(path)`` writes the file at `path` in the
         staging folder (e.g. ``{"report.html": lambda p: write_report(ds, result, None, p)}``).
+    records : xarray.Dataset, optional
+        The record set of the table: when it carries ``force``, ``frf.nc`` is written too
+        (without force there is no FRF and no ``frf.nc``).
 
     Returns
     -------
@@ -148,6 +155,10 @@ def write_modal_table(
     if recipe is not None:
         texts["recipe.json"] = recipe.to_json()
     extra = dict(extra_files or {})
+    if records is not None and "force" in records.data_vars and "frf.nc" not in extra:
+        from .frf_file import write_table_frf
+
+        extra["frf.nc"] = lambda path: write_table_frf(records, result, path)
     with replaced_folder(out) as stage:
         for name, text in texts.items():
             (stage / name).write_bytes(text.encode("utf-8"))

@@ -18,6 +18,8 @@ One module per panel:
 ``modal_table.py``        5 · Modal table: table, shapes, MAC, exports
 ``desk.py``               the tabs (:data:`~modalnb.widgets.desk.PANELS`)
 ``campaign.py``           the campaign panel (a :func:`modalnb.fit_campaign` result; not a tab)
+``frf_views.py``          views inside panels: coherence (hits), measured vs model FRF (fit
+                          check), model against test (modal table; :func:`model_pairing`)
 ========================  =====================================================
 
 Colours and display decimation come from :mod:`modalnb._display` (shared with the report).
@@ -34,10 +36,12 @@ from __future__ import annotations
 from .campaign import CampaignPanel, campaign_panel
 from .desk import Desk, analysis_desk
 from .fit_check import FitPanel
+from .frf_views import CoherenceView, FrfCheckView, ModelPairingView, model_pairing
 from .hits import HitPanel
 from .modal_table import TablePanel
 from .modes import ModesPanel
 from .time_window import WindowPanel
 
 __all__ = ["analysis_desk", "Desk", "HitPanel", "WindowPanel", "ModesPanel", "FitPanel", "TablePanel",
-           "campaign_panel", "CampaignPanel"]
+           "campaign_panel", "CampaignPanel", "CoherenceView", "FrfCheckView", "ModelPairingView",
+           "model_pairing"]

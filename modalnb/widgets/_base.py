@@ -141,6 +141,8 @@ class Panel:
         self.status = w.HTML()
         self.status.add_class("modalnb-status")
         self._unsubscribe = analysis.subscribe(self._on_event)
+        #: views inside the panel that listen to the analysis themselves (closed with it)
+        self.views: list[Any] = []
 
     @classmethod
     def for_desk(cls, analysis: Analysis, **options: Any) -> Panel:
@@ -179,6 +181,8 @@ class Panel:
     def close(self) -> None:
         """Stop listening to the analysis and close the widgets."""
         self._unsubscribe()
+        for view in self.views:
+            view.close()
         self.widget.close()
 
     def _repr_mimebundle_(self, **kwargs: Any) -> Any:

@@ -11,6 +11,7 @@ from plotly.subplots import make_subplots
 from .._display import PALETTE, decimate_for_display
 from ..session import Analysis
 from ._base import Panel, esc, fig_box, table_html
+from .frf_views import FrfCheckView
 
 __all__ = ["FitPanel"]
 
@@ -60,11 +61,13 @@ class FitPanel(Panel):
         self.quality.add_class("modalnb-fit-quality")
         self.cross = w.HTML()
         self.cross.add_class("modalnb-cross-checks")
+        self.frf_check = FrfCheckView(a)  # measured against model FRF (frf_views)
+        self.views.append(self.frf_check)
         self._finish([
             w.HTML("<b>Fit check.</b> The model uses the fitted poles; a residual without "
                    "structure and a residual spectrum without peaks mean no mode was missed."),
             w.HBox([self.hit, self.channel]), fig_box(self.fig, "modalnb-fit-figure"),
-            w.HBox([self.quality, self.cross]),
+            w.HBox([self.quality, self.cross]), self.frf_check.widget,
         ])
 
     def refresh(self) -> None:

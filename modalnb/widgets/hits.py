@@ -13,6 +13,7 @@ from .._errors import ModalnbError
 from ..checks import force_spectrum
 from ..session import Analysis
 from ._base import Panel, esc, fig_box, figure, table_html
+from .frf_views import CoherenceView
 
 __all__ = ["HitPanel"]
 
@@ -65,12 +66,14 @@ class HitPanel(Panel):
         for ch in a.channels:  # plotly reads names as its own markup: escape them
             self.resp_fig.add_scatter(x=[], y=[], mode="lines", name=esc(ch), line={"width": 1})
         self._busy = False
+        self.coherence = CoherenceView(a)  # coherence of the accepted hits (frf_views)
+        self.views.append(self.coherence)
         self._finish([
             w.HTML("<b>Hit review.</b> Automatic flags, the measures behind them, and your "
                    "decision per hit (your decision wins and goes into the recipe)."),
             self.count, self.table, w.VBox(rows), self.show_hit,
             fig_box(self.force_fig, "modalnb-force-figure"),
-            fig_box(self.resp_fig, "modalnb-response-figure"),
+            fig_box(self.resp_fig, "modalnb-response-figure"), self.coherence.widget,
         ])
 
     def _decide(self, hit: int, choice: str) -> None:

@@ -16,6 +16,7 @@ from ..export._aside import ASIDE_TITLE, aside_rows
 from ..geometry import Geometry
 from ..session import Analysis
 from ._base import Panel, esc, fig_box, figure, mode_rows, table_html
+from .frf_views import ModelPairingView
 from .shape_motion import ShapeMotion
 
 __all__ = ["TablePanel"]
@@ -112,6 +113,8 @@ class TablePanel(Panel):
         self.b_table.on_click(lambda _b: self.export(table=True, report=False))
         self.b_report.on_click(lambda _b: self.export(table=False, report=True))
         self.b_recipe.on_click(lambda _b: self.save_recipe())
+        self.pairing = ModelPairingView(a)  # model against test (frf_views)
+        self.views.append(self.pairing)
         self._finish([
             w.HTML("<b>Modal table.</b> Frequencies and damping ratios with their standard "
                    "uncertainties; shapes normalised to 1 on the largest channel."),
@@ -119,6 +122,7 @@ class TablePanel(Panel):
             w.HBox([fig_box(self.mac_fig, "modalnb-mac-figure")]),
             self.mode, w.HBox([fig_box(self.hitmac_fig, "modalnb-hitmac-figure"),
                                self.motion.widget]),
+            self.pairing.widget,
             w.HBox([self.out_dir]), w.HBox([self.b_table, self.b_report, self.b_recipe]),
             self.export_status,
         ])
