@@ -48,6 +48,17 @@ class Palette:
     #: MAC heatmaps: 0 (white-ish) to 1 (deep blue)
     mac_scale: tuple[tuple[float, str], ...] = ((0.0, "#f6f8fa"), (1.0, "#1f4e79"))
 
+    @property
+    def mode_line(self) -> dict[str, object]:
+        """The line style of a fitted mode's frequency on every spectrum (widgets, report).
+
+        Examples
+        --------
+        >>> PALETTE.mode_line["dash"]
+        'dash'
+        """
+        return {"color": self.mode, "width": 1, "dash": "dash"}
+
 
 #: The palette every figure and page of modalnb uses.
 PALETTE = Palette()

@@ -114,6 +114,10 @@ def _add_fit_args(p: argparse.ArgumentParser) -> None:
                    help="a hit-check threshold, e.g. clip_level=0.99 (repeatable; names in "
                    "`modalnb check` docs: help(modalnb.check_hits))")
     g.add_argument("--recipe", metavar="FILE", help="replay this recipe (JSON)")
+    r = p.add_argument_group("report title block (kept in the recipe)")
+    r.add_argument("--title", help="structure or test analysed, e.g. \"Bay 3 footbridge, deck\"")
+    r.add_argument("--analyst", help="who analysed the records")
+    r.add_argument("--notes", help="free notes shown in the report's title block")
     p.add_argument("--quiet", action="store_true", help="no progress messages")
 
 
@@ -197,6 +201,9 @@ def _recipe_from_args(args: argparse.Namespace, records: Any, base: Any = None):
                                        **_thresholds_from_args(args.threshold)}
     if getattr(args, "source", None):
         changes["source"] = args.source
+    for name in ("title", "analyst", "notes"):
+        if getattr(args, name, None) is not None:
+            changes[name] = getattr(args, name)
     recipe = recipe_for(records, base, **changes)
     if recipe.replayed_on_checksum:  # the recipe keeps its own checksum (provenance)
         print(
@@ -256,7 +263,7 @@ def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: s
 
     def report(path: Path) -> None:
         steps("writing the HTML report")
-        write_report(records, result, checks, path, title=title)
+        write_report(records, result, checks, path, recipe=recipe)
 
     steps("writing the modal table")
     # one set: the report is written beside the table and the folder replaced as a whole
