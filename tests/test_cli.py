@@ -90,7 +90,7 @@ def test_fit_writes_the_contract(fitted):
     with open(fitted / "shapes.csv", newline="") as fh:
         assert tuple(next(csv.reader(fh))[:4]) == SHAPE_COLUMNS
     hits = _rows(fitted / "hits.csv")
-    assert tuple(hits[0])[:4] == HIT_COLUMNS
+    assert tuple(hits[0])[:5] == HIT_COLUMNS
     assert {r["accepted"] for r in hits} <= {"true", "false"}
     assert not any(p.name.endswith(".tmp") for p in fitted.iterdir())
 

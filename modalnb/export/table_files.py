@@ -6,7 +6,8 @@ Files written by :func:`write_modal_table` (the contract other tools rely on):
   then every other per-mode quantity;
 * ``shapes.csv`` — ``mode,channel,amplitude,phase_deg``, then the other per-(mode, channel)
   quantities;
-* ``hits.csv``   — ``hit,accepted,reason,warnings`` (``accepted`` is ``true``/``false``);
+* ``hits.csv``   — ``hit,accepted,reason,warnings,notes`` (``accepted`` is ``true``/``false``;
+  ``notes``: advisories that neither reject nor warn);
 * ``poles_set_aside.csv`` — ``pole,frequency_hz,damping_ratio,frequency_hz_std,energy,reason``:
   the fitted poles that are residual terms, not modes (always written; header only when
   there are none);
