@@ -427,7 +427,7 @@ def _figures(records: xr.Dataset, result: xr.Dataset, model: xr.DataArray | None
     i0 = acc[0]
     n_ch = len(channels)
     fig = make_subplots(rows=n_ch, cols=1, shared_xaxes=True, vertical_spacing=0.03,
-                        subplot_titles=channels)
+                        subplot_titles=[c if len(c) <= 60 else c[:59] + "…" for c in channels])
     for c in range(n_ch):
         y = records["response"].values[i0, c]
         tt, yy = decimate_for_display(time, y)
@@ -464,22 +464,25 @@ h1{{font-size:1.6em;margin:.2em 0 .4em}}h2{{font-size:1.25em;margin:1.4em 0 .4em
 border-bottom:2px solid {p.grid};padding-bottom:.15em}}
 table{{border-collapse:collapse;margin:.4em 0 1em;max-width:100%}}
 td,th{{border:1px solid {p.grid};padding:.25em .55em;text-align:left;vertical-align:top}}
+td{{overflow-wrap:anywhere}}td.word{{overflow-wrap:normal}}
 th{{background:{p.header};font-weight:600}}
-td.num,th.num{{text-align:right;white-space:nowrap;font-variant-numeric:tabular-nums}}
+td.num,th.num{{text-align:right;font-variant-numeric:tabular-nums}}td.num{{white-space:nowrap}}
 caption{{text-align:left;font-weight:600;padding:.2em 0}}
 table.titleblock th{{width:12em}}table.titleblock{{min-width:60%}}
 table.hits{{width:100%}}table.hits td{{font-size:.93em}}
-.shape-grid{{display:grid;grid-template-columns:repeat(auto-fill,minmax(270px,1fr));gap:.2em 1.2em}}
+.shape-grid{{display:grid;grid-template-columns:repeat(auto-fill,minmax(min(100%,420px),1fr));gap:.2em 1.2em}}
+.shape-grid>*{{min-width:0}}
 .shape-grid table{{width:100%}}
 .caution{{border-left:5px solid {p.error};background:{p.caution};padding:.6em 1em}}
 .note{{color:#46535e;font-size:.92em}}ul.note{{margin-top:0}}
 code{{background:{p.header};padding:0 .2em}}
 pre.json{{background:{p.header};padding:.7em 1em;white-space:pre-wrap;overflow-wrap:anywhere;
 font-size:.85em;max-width:100%}}
-.figure{{width:100%;margin:.4em 0 1em}}
+.figure{{width:100%;margin:.4em 0 1em;overflow:hidden}}
 @media print{{
   @page{{margin:14mm 12mm}}
   body{{max-width:none;padding:0;font-size:10pt}}
+  table{{font-size:8.5pt}}td,th{{padding:.2em .35em}}td.num{{white-space:normal}}
   h2{{break-after:avoid;page-break-after:avoid}}
   tr,caption,.figure,.caution,table.titleblock,.shape-grid table{{break-inside:avoid;page-break-inside:avoid}}
   thead{{display:table-header-group}}
