@@ -40,6 +40,8 @@ class Palette:
     caution: str = "#fbf1f0"  #: background of the safety caution
     warning: str = "#8a5a00"  #: notes and warnings
     text: str = "#1d2730"  #: body text
+    note: str = "#46535e"  #: explanatory notes under tables
+    label_bg: str = "rgba(255, 255, 255, 0.85)"  #: background of labels drawn over a plot
     grid: str = "#d5dbe0"  #: table rules
     header: str = "#eef2f5"  #: table headings, code background
     #: one colour per channel (or per hit) when several are overlaid; cycles

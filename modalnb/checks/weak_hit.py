@@ -9,7 +9,7 @@ Measures
     energy of noise-only stretches of the same length, cut from the force samples
     outside the pulse window (their averaged periodogram: Welch 1967, "The use of fast
     Fourier transform for the estimation of power spectra", IEEE Trans. Audio
-    Electroacoustics 15(2), with a rectangular window and no overlap). 0 dB: the window
+    Electroacoustics 15(2) [from memory], with a rectangular window and no overlap). 0 dB: the window
     holds no more in-band energy than noise does. A blow that drives the band 20 dB over
     the noise gives an FRF whose force spectrum the noise barely touches.
 
@@ -34,6 +34,7 @@ from typing import Any
 
 import numpy as np
 
+from .._noise import unit_scale
 from .._utils import default_band
 from ._base import NAN, Check, Outcome, Threshold, Variable, db
 from ._hit import Hit
@@ -65,7 +66,7 @@ def band_snr_db(hit: Hit) -> float:
     p = hit.pulse
     if p is None or not p.clear:
         return NAN
-    x = p.centred
+    x = p.centred * unit_scale(p.centred)  # a power of two: no overflow in the squares below
     n = x.size
     lo = max(p.start - p.margin, 0)
     hi = min(p.end + p.margin, n)

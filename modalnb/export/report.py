@@ -106,14 +106,20 @@ class ReportContext:
 # -- building blocks -------------------------------------------------------------------------
 
 def _table(head: Sequence[str], rows: Sequence[Sequence[str]], css: str, *,
-           numeric: Sequence[int] = (), caption: str | None = None) -> str:
-    """An HTML table; every cell escaped; `numeric` columns right-aligned."""
-    num = set(numeric)
+           numeric: Sequence[int] = (), words: Sequence[int] = (),
+           caption: str | None = None) -> str:
+    """An HTML table; every cell escaped; `numeric` columns right-aligned and unbroken,
+    `words` columns broken only between words (other cells anywhere, to fit the page)."""
+    num, wrd = set(numeric), set(words)
+
+    def cls(i: int) -> str:
+        return " class=num" if i in num else (" class=word" if i in wrd else "")
+
     cap = f"<caption>{_e(caption)}</caption>" if caption else ""
     th = "".join(f'<th{" class=num" if i in num else ""}>{_e(h)}</th>' for i, h in enumerate(head))
     body = "".join(
-        "<tr>" + "".join(f'<td{" class=num" if i in num else ""}>{_e(c)}</td>'
-                         for i, c in enumerate(r)) + "</tr>" for r in rows)
+        "<tr>" + "".join(f"<td{cls(i)}>{_e(c)}</td>" for i, c in enumerate(r)) + "</tr>"
+        for r in rows)
     return f'<table class="{css}">{cap}<thead><tr>{th}</tr></thead><tbody>{body}</tbody></table>'
 
 
@@ -176,7 +182,7 @@ def _modal_table(ctx: ReportContext) -> str:
     note = ("<p class=note>Each value with its standard uncertainty (one standard deviation of "
             "the fit, coverage factor 1), rounded as JCGM 100:2008 (GUM) 7.2.6 says: the "
             "uncertainty to two significant digits, the value to the same decimal place.</p>")
-    return _table(head, rows, "modes", numeric=(1, 2, 3, 4)) + note
+    return _table(head, rows, "modes", numeric=(1, 2, 3, 4), words=(0, 5, 6)) + note
 
 
 _XCHECKS = (("xcheck_log_decrement_damping", "Log decrement ζ [%]", "log_decrement"),
@@ -192,7 +198,8 @@ def _cross_checks(ctx: ReportContext) -> str:
     rows = [[_text(ctx.result["mode"].values[k]), damping_cell(ctx.var("damping_ratio", k)),
              *(damping_cell(ctx.var(x[0], k)) for x in present), _text(ctx.var("xcheck_note", k))]
             for k in range(ctx.n_modes)]
-    out = _table(head, rows, "xchecks", numeric=tuple(range(1, len(present) + 2)))
+    out = _table(head, rows, "xchecks", numeric=tuple(range(1, len(present) + 2)),
+                 words=(0, len(present) + 2))
     biases = ctx.result.attrs.get("cross_check_biases")
     if isinstance(biases, str):
         try:
@@ -227,7 +234,7 @@ def _aside(ctx: ReportContext) -> str:
     return ("<p class=note>Fitted poles that are residual terms of the model, not modes (they "
             "absorb the force pulse, an offset, out-of-band modes or noise; they stay in the "
             "model so the modes' numbers do not change), each with the reason.</p>"
-            + _table(head, body, "aside", numeric=(1, 2, 3)))
+            + _table(head, body, "aside", numeric=(1, 2, 3), words=(0,)))
 
 
 def _shapes(ctx: ReportContext) -> str:
@@ -286,7 +293,7 @@ def _hits(ctx: ReportContext) -> str:
         ])
     n_used = sum(1 for r in rows if r["accepted"])
     return (f"<p>{n_used} of {len(rows)} hits used in the fit.</p>"
-            + _table(head, body, "hits", numeric=(3, 4, 5)))
+            + _table(head, body, "hits", numeric=(3, 4, 5), words=(0, 1, 2)))
 
 
 def _ms(seconds: float, step: float) -> str:
@@ -399,7 +406,7 @@ def _figures(records: xr.Dataset, result: xr.Dataset, model: xr.DataArray | None
         fig.add_vline(x=f, line=PALETTE.mode_line)
         fig.add_annotation(x=f, y=1 + 0.07 * (n_rows - 1 - row), yref="paper", yanchor="bottom",
                            text=f"mode {k + 1}", showarrow=False, font={"color": PALETTE.mode, "size": 11},
-                           bgcolor="rgba(255,255,255,0.85)")
+                           bgcolor=PALETTE.label_bg)
     if shown:  # a legend entry that says what the dashed lines are
         fig.add_trace(go.Scatter(x=[None], y=[None], mode="lines", line=PALETTE.mode_line,
                                  name="fitted mode (natural frequency)"))
@@ -444,7 +451,9 @@ def _figures(records: xr.Dataset, result: xr.Dataset, model: xr.DataArray | None
             fig.add_trace(go.Scatter(x=tt, y=yy, mode="lines", line={"color": PALETTE.residual, "width": 1},
                                      name="residual (measured - model)", legendgroup="r", showlegend=c == 0),
                           row=c + 1, col=1)
-    _layout(fig, f"Hit {int(hits[i0])}: measured, fitted model and residual, per channel",
+    units = str(records["response"].attrs.get("units", ""))
+    _layout(fig, f"Hit {int(hits[i0])}: measured, fitted model and residual, per channel"
+            + (f" [{units}]" if units else ""),
             max(420, 150 * n_ch + 140))
     fig.update_layout(legend={"y": -40 / max(420, 150 * n_ch + 140)})
     fig.update_xaxes(title_text="time [s]", row=n_ch, col=1)
@@ -474,7 +483,7 @@ table.hits{{width:100%}}table.hits td{{font-size:.93em}}
 .shape-grid>*{{min-width:0}}
 .shape-grid table{{width:100%}}
 .caution{{border-left:5px solid {p.error};background:{p.caution};padding:.6em 1em}}
-.note{{color:#46535e;font-size:.92em}}ul.note{{margin-top:0}}
+.note{{color:{p.note};font-size:.92em}}ul.note{{margin-top:0}}
 code{{background:{p.header};padding:0 .2em}}
 pre.json{{background:{p.header};padding:.7em 1em;white-space:pre-wrap;overflow-wrap:anywhere;
 font-size:.85em;max-width:100%}}
