@@ -242,3 +242,19 @@ def test_extreme_numbers_keep_fixed_point():
     assert not any(E_NOTATION.search(c) for r in rows for c in r)
     assert math.isclose(float(rows[0][2].split(" ± ")[0]), 1.50561, rel_tol=1e-9)
     assert dict(p.of("titleblock")[0]["rows"])["Analysis date"] == "2026-01-02T03:04:05+00:00"
+
+
+def test_hit_decision_by_the_user_is_shown_as_theirs():
+    # demo_truth.json: hit 4 is the double hit; the user accepts it and rejects hit 2
+    ds = load_demo()
+    recipe = recipe_for(ds, Recipe(hit_overrides={4: True, 2: False}))
+    result, checks = run_recipe(ds, recipe)
+    p = Tables()
+    p.feed(report_html(ds, result, checks))
+    head, *rows = p.of("hits")[0]["rows"]
+    by = {int(r[0]): r[head.index("Decision by")] for r in rows}
+    used = {int(r[0]): r[head.index("Used in fit")] for r in rows}
+    assert by[4] == "you (accepted)" and used[4] == "yes"
+    assert by[2] == "you (rejected)" and used[2] == "no"
+    assert by[1] == "checks"
+    assert {int(r[0]): r[head.index("Reason")] for r in rows}[2] == "rejected by user"

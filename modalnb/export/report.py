@@ -477,7 +477,7 @@ td{{overflow-wrap:anywhere}}td.word{{overflow-wrap:normal}}
 th{{background:{p.header};font-weight:600}}
 td.num,th.num{{text-align:right;font-variant-numeric:tabular-nums}}td.num{{white-space:nowrap}}
 caption{{text-align:left;font-weight:600;padding:.2em 0}}
-table.titleblock th{{width:12em}}table.titleblock{{min-width:60%}}
+table.titleblock th{{width:12em}}table.titleblock{{min-width:60%}}table.titleblock td{{white-space:pre-line}}
 table.hits{{width:100%}}table.hits td{{font-size:.93em}}
 .shape-grid{{display:grid;grid-template-columns:repeat(auto-fill,minmax(min(100%,420px),1fr));gap:.2em 1.2em}}
 .shape-grid>*{{min-width:0}}
