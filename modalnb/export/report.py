@@ -418,7 +418,7 @@ def _figures(records: xr.Dataset, result: xr.Dataset, model: xr.DataArray | None
     # 2. force pulses per hit
     if "force" in records:
         fig = go.Figure()
-        win = (time >= -0.002) & (time <= 0.02)
+        win = (time >= -0.001) & (time <= 0.008)  # the pulse and a second tap within 8 ms
         for i, h in enumerate(hits):
             ok = accepted.get(int(h), True)
             fig.add_trace(go.Scatter(
