@@ -40,6 +40,8 @@ class Palette:
     caution: str = "#fbf1f0"  #: background of the safety caution
     warning: str = "#8a5a00"  #: notes and warnings
     text: str = "#1d2730"  #: body text
+    note: str = "#46535e"  #: explanatory notes under tables
+    label_bg: str = "rgba(255, 255, 255, 0.85)"  #: background of labels drawn over a plot
     grid: str = "#d5dbe0"  #: table rules
     header: str = "#eef2f5"  #: table headings, code background
     #: one colour per channel (or per hit) when several are overlaid; cycles
@@ -47,6 +49,17 @@ class Palette:
                                "#7a5aa6", "#8c6d1f", "#c2410c", "#4d7c0f", "#64748b")
     #: MAC heatmaps: 0 (white-ish) to 1 (deep blue)
     mac_scale: tuple[tuple[float, str], ...] = ((0.0, "#f6f8fa"), (1.0, "#1f4e79"))
+
+    @property
+    def mode_line(self) -> dict[str, object]:
+        """The line style of a fitted mode's frequency on every spectrum (widgets, report).
+
+        Examples
+        --------
+        >>> PALETTE.mode_line["dash"]
+        'dash'
+        """
+        return {"color": self.mode, "width": 1, "dash": "dash"}
 
 
 #: The palette every figure and page of modalnb uses.

@@ -114,6 +114,10 @@ def _add_fit_args(p: argparse.ArgumentParser) -> None:
                    help="a hit-check threshold, e.g. clip_level=0.99 (repeatable; names in "
                    "`modalnb check` docs: help(modalnb.check_hits))")
     g.add_argument("--recipe", metavar="FILE", help="replay this recipe (JSON)")
+    r = p.add_argument_group("report title block (kept in the recipe)")
+    r.add_argument("--title", help="structure or test analysed, e.g. \"Bay 3 footbridge, deck\"")
+    r.add_argument("--analyst", help="who analysed the records")
+    r.add_argument("--notes", help="free notes shown in the report's title block")
     p.add_argument("--quiet", action="store_true", help="no progress messages")
 
 
@@ -199,6 +203,9 @@ def _recipe_from_args(args: argparse.Namespace, records: Any, base: Any = None):
         changes["source"] = args.source
     if getattr(args, "reference_channel", None):
         changes["reference_channels"] = list(args.reference_channel)
+    for name in ("title", "analyst", "notes"):
+        if getattr(args, name, None) is not None:
+            changes[name] = getattr(args, name)
     recipe = recipe_for(records, base, **changes)
     if recipe.replayed_on_checksum:  # the recipe keeps its own checksum (provenance)
         print(
@@ -261,7 +268,7 @@ def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: s
 
     def report(path: Path) -> None:
         steps("writing the HTML report")
-        write_report(records, result, checks, path, title=title)
+        write_report(records, result, checks, path, recipe=recipe)
 
     steps("writing the modal table")
     # one set: the report is written beside the table and the folder replaced as a whole
@@ -368,23 +375,27 @@ def _truth_comparison(result: Any, truth: dict) -> str:
     """The demo's true modal parameters next to the estimates (nearest in frequency)."""
     import math
 
-    lines = ["Compared with the demo's true values (generated physics):",
-             "mode  true f_n [Hz]  estimate [Hz]  (err/std)  true zeta [%]  estimate [%]  (err/std)"]
+    from .export._cells import damping_cell, number_cell, pm_cell
+    from .export.terminal import _aligned
+
+    rows = []
     est_f = [float(v) for v in result["frequency_hz"].values]
     for k, m in enumerate(truth.get("modes", []), start=1):
         f_true, z_true = float(m["frequency_hz"]), float(m["damping_ratio"])
-        if not est_f:
-            lines.append(f"{k:<4d}  {f_true:<13.6g}  not found")
+        j = min(range(len(est_f)), key=lambda i: abs(est_f[i] - f_true)) if est_f else None
+        if j is None or abs(est_f[j] - f_true) > 0.05 * f_true:
+            rows.append([str(k), number_cell(f_true, "frequency_hz"), "not found", "",
+                         damping_cell(z_true), "", ""])
             continue
-        j = min(range(len(est_f)), key=lambda i: abs(est_f[i] - f_true))
         f, fs = est_f[j], float(result["frequency_hz_std"].values[j])
         z, zs = float(result["damping_ratio"].values[j]), float(result["damping_ratio_std"].values[j])
-        if abs(f - f_true) > 0.05 * f_true:
-            lines.append(f"{k:<4d}  {f_true:<13.6g}  not found")
-            continue
         ef = (f - f_true) / fs if fs > 0 else math.nan
         ez = (z - z_true) / zs if zs > 0 else math.nan
-        lines.append(f"{k:<4d}  {f_true:<13.6g}  {f:<13.6g}  ({ef:+.1f})     {100 * z_true:<13.4g}  {100 * z:<12.4g}  ({ez:+.1f})")
+        rows.append([str(k), number_cell(f_true, "frequency_hz"), pm_cell(f, fs, "Hz"), f"({ef:+.1f})",
+                     damping_cell(z_true), pm_cell(z, zs, "%", scale=100), f"({ez:+.1f})"])
+    lines = ["Compared with the demo's true values (generated physics):",
+             *_aligned(["mode", "true f_n [Hz]", "estimate [Hz]", "(err/u)", "true damping [%]",
+                        "estimate [%]", "(err/u)"], rows)]
     return "\n".join(lines)
 
 

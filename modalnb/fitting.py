@@ -150,7 +150,7 @@ def finish_table(
 
     Adds to the engine's table the damping cross-checks (computed on `records`, the
     records the engine saw; :func:`modalnb.estimate.with_cross_checks`), the hit checks'
-    ``hit_reason`` and ``hit_warnings``, the recipe that replays the fit
+    ``hit_reason``, ``hit_warnings`` and ``hit_notes``, the recipe that replays the fit
     (``attrs["recipe"]``, JSON) and ``attrs["modalnb_version"]``. For a roving-hammer
     record set (hits at more than one node) also the shapes over nodes
     (:func:`modalnb.node_shapes.with_node_shapes`: ``node_shape_amplitude``,
@@ -161,7 +161,7 @@ def finish_table(
     >>> from modalnb.demo import load_demo
     >>> res = ModeFit().fit(load_demo()).result_
     >>> sorted(k for k in res.data_vars if k.startswith("hit_"))  # doctest: +NORMALIZE_WHITESPACE
-    ['hit_accepted', 'hit_reason', 'hit_residue_imag', 'hit_residue_real', 'hit_warnings']
+    ['hit_accepted', 'hit_notes', 'hit_reason', 'hit_residue_imag', 'hit_residue_real', 'hit_warnings']
     """
     if records is not None:
         table = with_cross_checks(records, table)
@@ -169,6 +169,8 @@ def finish_table(
     table = table.assign(
         hit_reason=("hit", [str(r) for r in checks["reason"].values]),
         hit_warnings=("hit", [str(w) for w in checks["warnings"].values]),
+        hit_notes=("hit", [str(w) for w in checks["notes"].values] if "notes" in checks
+                   else [""] * checks.sizes["hit"]),
     )
     table.attrs["recipe"] = recipe.to_json()
     table.attrs["modalnb_version"] = package_version()

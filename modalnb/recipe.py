@@ -4,7 +4,11 @@ The same recipe and the same records give the same modal table, in a notebook or
 the command line. A recipe holds the frequency band, the time window, the model order (a
 number of modes, or a list of mode frequencies to keep), the hit decisions the user
 overrode, the hit-check thresholds, whether the acquisition's exponential window is
-corrected, and the checksum of the records it was made on.
+corrected, and the checksum of the records it was made on; and, for the report's title
+block, what was tested (``title``), who analysed it (``analyst``) and free ``notes``.
+
+Versions: 2 added ``title`` and ``analyst``; a version-1 recipe is still read (without
+them), and a version-1 file that holds them is refused (they are not version-1 keys).
 """
 
 from __future__ import annotations
@@ -28,12 +32,15 @@ if TYPE_CHECKING:
 
 __all__ = ["Recipe", "RecipeError", "RecipeFileNotFoundError", "load_recipe", "save_recipe",
            "recipe_for", "package_version", "merge_recipes", "read_recipe_file", "content_hash",
-           "CHOICE_FIELDS", "RECIPE_FORMAT", "RECIPE_VERSION"]
+           "CHOICE_FIELDS", "RECIPE_FORMAT", "RECIPE_VERSION", "ADDED_IN"]
 
 #: Value of the ``format`` key that marks a modalnb recipe.
 RECIPE_FORMAT = "modalnb-recipe"
 #: Version written by this modalnb; older versions are read (migrated) or refused.
-RECIPE_VERSION = 1
+RECIPE_VERSION = 2
+
+#: Keys each version added (a file of an older version may not hold them).
+ADDED_IN = {"title": 2, "analyst": 2, "reference_channels": 2}
 
 
 @functools.cache
@@ -145,8 +152,13 @@ class Recipe:
         ``records_checksum`` (None otherwise): the table may differ from the original.
     source : str or None
         Where the records came from (informative).
+    title : str
+        The structure or test analysed (the report's title block), e.g. "Bay 3 footbridge,
+        deck, tap test 2"; "" for none.
+    analyst : str
+        Who analysed the records (the report's title block); "" for none.
     notes : str
-        Free text.
+        Free text (shown in the report's title block).
     created_with : str
         modalnb version that wrote the recipe.
 
@@ -169,6 +181,8 @@ class Recipe:
     records_checksum: str | None = None
     replayed_on_checksum: str | None = None
     source: str | None = None
+    title: str = ""
+    analyst: str = ""
     notes: str = ""
     created_with: str = ""
 
@@ -206,6 +220,8 @@ class Recipe:
         self.records_checksum = _optional_text("records_checksum", self.records_checksum)
         self.replayed_on_checksum = _optional_text("replayed_on_checksum", self.replayed_on_checksum)
         self.source = _optional_text("source", self.source)
+        self.title = _optional_text("title", self.title, allow_none=False)
+        self.analyst = _optional_text("analyst", self.analyst, allow_none=False)
         self.notes = _optional_text("notes", self.notes, allow_none=False)
         self.created_with = _optional_text("created_with", self.created_with, allow_none=False)
         if not self.created_with:
@@ -252,7 +268,13 @@ class Recipe:
         if version < 1:
             raise RecipeError(f"{where}recipe version {version} is not a known version.")
         body = {k: v for k, v in data.items() if k not in ("format", "version")}
-        known = {f.name for f in fields(cls)}
+        known = {f.name for f in fields(cls) if ADDED_IN.get(f.name, 1) <= version}
+        later = sorted(k for k in body if ADDED_IN.get(k, 1) > version)
+        if later:
+            raise RecipeError(
+                f"{where}recipe key {later[0]!r} is not a version-{version} key (added in "
+                f"version {ADDED_IN[later[0]]}). Hint: set 'version' to {ADDED_IN[later[0]]}."
+            )
         unknown = sorted(set(body) - known)
         if unknown:
             raise RecipeError(
@@ -414,7 +436,8 @@ def load_recipe(path: str | os.PathLike[str]) -> Recipe:
 #: The fields that are the user's choices (merged field by field when two sessions write
 #: one recipe file); the others are provenance, written by whoever writes.
 CHOICE_FIELDS = ("band", "window", "n_modes", "add_modes", "drop_modes", "hit_overrides",
-                 "check_thresholds", "correct_exponential_window", "reference_channels", "notes")
+                 "check_thresholds", "correct_exponential_window", "reference_channels", "title",
+                 "analyst", "notes")
 _KEYED = ("hit_overrides", "check_thresholds")  # merged key by key
 _SETS = ("add_modes", "drop_modes")  # merged element by element
 

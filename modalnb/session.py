@@ -574,9 +574,22 @@ class Analysis:
         table: bool = True,
         report: bool = True,
         title: str | None = None,
+        analyst: str | None = None,
+        notes: str | None = None,
     ) -> dict[str, Path]:
         """Write the modal table files (CSV, netCDF, JSON, recipe; ``frf.nc`` when the records
         carry force) and/or ``report.html``.
+
+        Parameters
+        ----------
+        out_dir : path
+            Output folder.
+        table, report : bool
+            Write the table files / the HTML report.
+        title, analyst, notes : str, optional
+            The report's title block: the structure or test analysed, who analysed it,
+            free notes. Given, they are stored in the recipe (and autosaved with it), so
+            a replay writes the same title block; None keeps the recipe's.
 
         Returns
         -------
@@ -585,6 +598,12 @@ class Analysis:
         """
         if self.result is None:
             raise ModalnbError("nothing to export yet: the fit has not succeeded. Hint: see `error`.")
+        given = {k: v for k, v in (("title", title), ("analyst", analyst), ("notes", notes))
+                 if v is not None}
+        if given:  # title-block fields: no refit, but kept with the other choices
+            self.recipe = replace(self.recipe, **given)
+            if self.recipe_path is not None:
+                self._autosave(self.recipe, force=True)
         if self.preview and not self._apply(self.recipe, full=True):
             raise ModalnbError(f"the full fit before export failed: {self.error}")
         from ._files import replaced_folder
@@ -593,8 +612,7 @@ class Analysis:
         out = Path(out_dir)
         files: dict[str, Path] = {}
         extra = {"report.html": lambda path: write_report(
-            self.records, self.result, self.checks, path,
-            title=title or f"modalnb: {self.source or 'record set'}",
+            self.records, self.result, self.checks, path, recipe=self.recipe,
         )} if report else {}
         if table:  # one set: the folder is replaced as a whole, the report with the table
             files.update(write_modal_table(self.result, out, recipe=self.recipe, checks=self.checks,

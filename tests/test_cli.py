@@ -90,7 +90,7 @@ def test_fit_writes_the_contract(fitted):
     with open(fitted / "shapes.csv", newline="") as fh:
         assert tuple(next(csv.reader(fh))[:4]) == SHAPE_COLUMNS
     hits = _rows(fitted / "hits.csv")
-    assert tuple(hits[0])[:4] == HIT_COLUMNS
+    assert tuple(hits[0])[:5] == HIT_COLUMNS
     assert {r["accepted"] for r in hits} <= {"true", "false"}
     assert not any(p.name.endswith(".tmp") for p in fitted.iterdir())
 
@@ -121,3 +121,21 @@ def test_fit_bad_band_one_line(demo_file, tmp_path, capsys):
     assert main(["fit", str(demo_file), "--out", str(tmp_path / "o"), "--band", "500", "100", "--quiet"]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "band" in err[0]
+
+
+def test_fit_title_block_options_land_in_recipe_and_report(demo_file, tmp_path):
+    out = tmp_path / "titled"
+    assert main(["fit", str(demo_file), "--out", str(out), "--quiet", "--title", "Heron boom, bench",
+                 "--analyst", "J. Tester", "--notes", "steel tip"]) == 0
+    recipe = json.loads((out / "recipe.json").read_text())
+    assert (recipe["title"], recipe["analyst"], recipe["notes"]) == ("Heron boom, bench", "J. Tester", "steel tip")
+    page = (out / "report.html").read_text(encoding="utf-8")
+    assert "<title>Heron boom, bench</title>" in page
+    assert "<th scope=row>Analyst</th><td>J. Tester</td>" in page
+    assert f"<th scope=row>Records</th><td>{demo_file}</td>" in page
+    digest = recipe["records_checksum"].split(":")[1]
+    assert f"sha256:{digest[:12]}</td>" in page
+    # the replay of that recipe keeps the title block
+    again = tmp_path / "again"
+    assert main(["fit", str(demo_file), "--out", str(again), "--quiet", "--recipe", str(out / "recipe.json")]) == 0
+    assert json.loads((again / "recipe.json").read_text())["analyst"] == "J. Tester"

@@ -4,10 +4,12 @@ from __future__ import annotations
 
 import csv
 import json
+import re
 
 import numpy as np
 import pytest
 import xarray as xr
+from gum_rounding import gum_pm
 
 from modalnb.export import (
     HIT_COLUMNS,
@@ -97,11 +99,18 @@ def test_interrupted_write_keeps_old_files(tmp_path, monkeypatch):
 
 
 def test_terminal_table_aligned_with_units():
-    text = format_modal_table(_result())
+    res = _result()
+    text = format_modal_table(res)
     lines = text.splitlines()
-    assert "f_n [Hz]" in lines[0] and "zeta [%]" in lines[0]
+    assert "f_n [Hz]" in lines[0] and "damping [%]" in lines[0]
     assert len(lines) == 3
-    assert lines[1].split()[1] == "12.3457" and lines[1].split()[3] == "1.23"
+    # each value ± u rounded per GUM 7.2.6, computed here from the raw numbers (tests/gum_rounding.py)
+    for k, line in enumerate(lines[1:]):
+        f = gum_pm(res["frequency_hz"].values[k], res["frequency_hz_std"].values[k])
+        z = gum_pm(res["damping_ratio"].values[k], res["damping_ratio_std"].values[k], scale=100)
+        assert f in line and z in line
+    assert "12.3457 ± 0.0010" in lines[1]  # by hand: u = 0.0010 Hz, value to 4 decimals
+    assert not re.search(r"\de[+-]?\d", text)  # no e-notation
     # columns line up: every row starts its regime at the same offset
     assert len({line.index(w) for line, w in zip(lines[1:], ["underdamped", "overdamped"], strict=True)}) == 1
 

@@ -93,3 +93,33 @@ def test_fit_modes_replays_a_recipe_file(tmp_path):
     assert Recipe.from_json(table.attrs["recipe"]) == recipe
     with pytest.raises(EstimationError, match="either recipe= or band"):
         fit_modes(ds, band=(1.0, 100.0), recipe=recipe)
+
+
+def test_version_1_recipe_still_reads(tmp_path):
+    # a version-1 file as modalnb 0.1.0 wrote it (its keys, no title/analyst): read as is,
+    # written back in the current version with the two new fields empty
+    v1 = {"format": "modalnb-recipe", "version": 1, "band": [10.0, 900.0], "window": None,
+          "n_modes": 3, "add_modes": [], "drop_modes": [], "hit_overrides": {"4": True},
+          "check_thresholds": {}, "correct_exponential_window": True,
+          "records_checksum": "sha256:" + "ab" * 32, "replayed_on_checksum": None,
+          "source": "bay3.nc", "notes": "left bracket", "created_with": "modalnb 0.1.0"}
+    p = tmp_path / "v1.json"
+    p.write_text(json.dumps(v1))
+    r = load_recipe(p)
+    assert (r.band, r.n_modes, r.hit_overrides, r.notes) == ((10.0, 900.0), 3, {4: True}, "left bracket")
+    assert (r.title, r.analyst) == ("", "")
+    out = json.loads(r.to_json())
+    assert out["version"] == RECIPE_VERSION == 2
+    assert out["title"] == "" and out["analyst"] == ""
+
+
+def test_title_block_fields_round_trip_and_are_strict(tmp_path):
+    r = Recipe(title="Bay 3 footbridge, deck", analyst="A. Tester", notes="wet deck")
+    back = load_recipe(save_recipe(r, tmp_path / "r.json"))
+    assert (back.title, back.analyst, back.notes) == ("Bay 3 footbridge, deck", "A. Tester", "wet deck")
+    with pytest.raises(RecipeError, match=r"recipe `analyst` must be text"):
+        Recipe(analyst=3)
+    p = tmp_path / "v1_with_title.json"
+    p.write_text(json.dumps({"format": "modalnb-recipe", "version": 1, "title": "x"}))
+    with pytest.raises(RecipeError, match=r"'title' is not a version-1 key \(added in version 2\)"):
+        load_recipe(p)

@@ -78,6 +78,9 @@ def test_hand_written_recipe_equals_a_direct_engine_call(demo, tmp_path):
     # the table carries the recipe it replays, key for key
     carried = json.loads(table.attrs["recipe"])
     for key, value in json.loads(path.read_text()).items():
+        if key == "version":  # a version-1 file is read and carried in the current version
+            assert value == 1 and carried[key] == 2, key
+            continue
         assert carried[key] == value, key
 
 

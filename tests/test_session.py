@@ -274,3 +274,16 @@ def test_real_estimator_on_small_records():
     assert np.min(np.abs(freq[stable] - 40.0)) < 0.4  # a stable column at mode 1
     assert a.set_window(0.1, 1.5) and a.preview  # the engine's fast refit
     np.testing.assert_allclose(a.result["frequency_hz"].values, [40.0, 90.0], rtol=1e-3)
+
+
+def test_export_title_block_is_kept_in_the_recipe(demo, tmp_path):
+    a = Analysis(demo, recipe_path=tmp_path / "boom.recipe.json")
+    files = a.export(tmp_path / "out", title="Heron boom", analyst="J. Tester", notes="dry")
+    on_disk = json.loads((tmp_path / "boom.recipe.json").read_text())  # autosaved with the choices
+    written = json.loads(files["recipe.json"].read_text())
+    for data in (on_disk, written):
+        assert (data["title"], data["analyst"], data["notes"]) == ("Heron boom", "J. Tester", "dry")
+    page = files["report.html"].read_text(encoding="utf-8")
+    assert "<h1>Heron boom</h1>" in page and "<td>J. Tester</td>" in page
+    a.export(tmp_path / "out2", table=False)  # None keeps the recipe's
+    assert "<h1>Heron boom</h1>" in (tmp_path / "out2" / "report.html").read_text(encoding="utf-8")

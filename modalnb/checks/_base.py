@@ -104,11 +104,12 @@ class Outcome:
 
     `values` maps variable names to a scalar (per hit) or an array over channels;
     `findings` are lower-case phrases starting with the check's name, empty when the
-    hit passes.
+    hit passes; `notes` are advisories that neither reject nor warn (the hit's ``notes``).
     """
 
     values: dict[str, Any] = field(default_factory=dict)
     findings: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
 
 
 @dataclass(frozen=True)

@@ -3,8 +3,9 @@
 Each hit is analysed once (:func:`modalnb.checks._hit.analyse_hit`: force pulse, noise
 floors, dead channels); then every check in :data:`CHECKS` measures it and may add
 phrases. The phrases of the checks named in ``reject`` become the hit's ``reason``, the
-others its ``warnings`` (followed by advisories such as "no force record"); the user's
-overrides win over both. Keyword arguments, their validation, the result's variables and
+others its ``warnings`` (followed by advisories such as "no force record"); a check's
+notes (advisories that neither reject nor warn, such as the force range used) go to
+``notes``; the user's overrides win over reason and warnings. Keyword arguments, their validation, the result's variables and
 its attrs all come from the checks' declarations.
 """
 
@@ -67,6 +68,8 @@ _STATUS = (
     Variable("accepted", "bool", "the hit is used for estimation"),
     Variable("reason", "str", "why it is rejected (phrases joined by '; ')"),
     Variable("warnings", "str", "findings that do not reject it (phrases joined by '; ')"),
+    Variable("notes", "str", "advisories that neither reject nor warn, e.g. force range "
+             "used (phrases joined by '; ')"),
     Variable("user_decision", "str", '"accepted", "rejected" or ""'),
 )
 _VARIABLES: tuple[Variable, ...] = _STATUS + _hit.VARIABLES + tuple(
@@ -253,10 +256,12 @@ __CHANNEL_VARIABLES__
         values = _hit.hit_values(hit)
         reasons: list[str] = []
         warns: list[str] = []
+        notes: list[str] = []
         for check in CHECKS:
             outcome = check.run(hit, th)
             values.update(outcome.values)
             (reasons if check.name in reject_set else warns).extend(outcome.findings)
+            notes.extend(outcome.notes)
         warns.extend(hit.notes)
         decision = ""
         if label in user:
@@ -269,7 +274,7 @@ __CHANNEL_VARIABLES__
                 decision = "rejected"
                 reasons.insert(0, "rejected by user")
         values.update(accepted=not reasons, reason=_join(reasons), warnings=_join(warns),
-                      user_decision=decision)
+                      notes=_join(notes), user_decision=decision)
         for name, column in columns.items():
             column.append(values[name])
 

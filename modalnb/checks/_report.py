@@ -12,7 +12,10 @@ from .._errors import ModalnbError
 __all__ = ["format_hit_report"]
 
 
-def _fmt(value: Any, spec: str) -> str:
+def _fmt(value: Any, kind: str) -> str:
+    """A number through the one formatter (:func:`modalnb._numbers.format_quantity`)."""
+    from .._numbers import format_quantity
+
     try:
         v = float(value)
     except (TypeError, ValueError):
@@ -21,7 +24,7 @@ def _fmt(value: Any, spec: str) -> str:
         return "-"
     if np.isinf(v):
         return "inf" if v > 0 else "-inf"
-    return format(v, spec)
+    return format_quantity(v, kind, unit=False)
 
 
 def format_hit_report(checks: xr.Dataset, source: str | None = None) -> str:
@@ -38,7 +41,8 @@ def format_hit_report(checks: xr.Dataset, source: str | None = None) -> str:
     -------
     str
         Aligned columns (hit, accepted yes/no, peak force, pulse duration, second
-        excursion, clipped samples, SNR, force roll-off, end level, reason / warnings)
+        excursion, clipped samples, SNR, in-band force SNR, force roll-off, end level,
+        reason / warnings / notes)
         with units in the header, and a last line such as "4 of 6 hits accepted".
 
     Examples
@@ -58,29 +62,30 @@ def format_hit_report(checks: xr.Dataset, source: str | None = None) -> str:
             "format_hit_report expects the Dataset returned by check_hits (with 'accepted')."
         )
     f_units = checks["peak_force"].attrs.get("units", "") if "peak_force" in checks else ""
-    cols = [  # header, variable, format, scale
-        (f"peak force [{f_units}]" if f_units else "peak force", "peak_force", ".4g", 1.0),
-        ("pulse [ms]", "pulse_duration_s", ".3g", 1e3),
-        ("2nd hit [%]", "double_hit_ratio", ".1f", 100.0),
-        ("clipped [samples]", "clipped_samples", "d", 1),
-        ("SNR [dB]", "snr_db", ".1f", 1.0),
-        ("roll-off [dB]", "force_rolloff_db", ".1f", 1.0),
-        ("end [dB]", "end_level_db", ".1f", 1.0),
+    cols = [  # header, variable, kind of number (modalnb._numbers), scale
+        (f"peak force [{f_units}]" if f_units else "peak force", "peak_force", "amplitude", 1.0),
+        ("pulse [ms]", "pulse_duration_s", "amplitude", 1e3),
+        ("2nd hit [%]", "double_hit_ratio", "percent", 1.0),
+        ("clipped [samples]", "clipped_samples", "count", 1),
+        ("SNR [dB]", "snr_db", "db", 1.0),
+        ("force in band [dB]", "force_band_snr_db", "db", 1.0),
+        ("roll-off [dB]", "force_rolloff_db", "db", 1.0),
+        ("end [dB]", "end_level_db", "db", 1.0),
     ]
+    cols = [c for c in cols if c[1] in checks]
     rows: list[list[str]] = []
     for i, hit in enumerate(checks["hit"].values):
         row = []
-        for _, var, spec, scale in cols:
+        for _, var, kind, scale in cols:
             value = checks[var].values[i]
-            row.append(str(int(value)) if spec == "d" else _fmt(scale * float(value), spec))
+            row.append(str(int(value)) if kind == "count" else _fmt(scale * float(value), kind))
         ok = bool(checks["accepted"].values[i])
         notes = []
-        if str(checks["reason"].values[i]):
-            notes.append("rejected: " + str(checks["reason"].values[i]))
-        if str(checks["warnings"].values[i]):
-            notes.append("warnings: " + str(checks["warnings"].values[i]))
+        for name, label in (("reason", "rejected"), ("warnings", "warnings"), ("notes", "notes")):
+            if name in checks and str(checks[name].values[i]):
+                notes.append(f"{label}: {checks[name].values[i]}")
         rows.append([str(int(hit)), "yes" if ok else "no", *row, " | ".join(notes)])
-    header = ["hit", "accepted", *(c[0] for c in cols), "reason / warnings"]
+    header = ["hit", "accepted", *(c[0] for c in cols), "reason / warnings / notes"]
     widths = [max(len(header[j]), *(len(r[j]) for r in rows)) for j in range(len(header) - 1)]
     lines = []
     if source:

@@ -17,7 +17,8 @@ Files written by :func:`write_modal_table` (the contract other tools rely on):
   then every other per-mode quantity;
 * ``shapes.csv`` — ``mode,channel,amplitude,phase_deg``, then the other per-(mode, channel)
   quantities;
-* ``hits.csv``   — ``hit,accepted,reason,warnings`` (``accepted`` is ``true``/``false``);
+* ``hits.csv``   — ``hit,accepted,reason,warnings,notes`` (``accepted`` is ``true``/``false``;
+  ``notes``: advisories that neither reject nor warn);
 * ``node_shapes.csv`` — ``mode,node,node_name,direction,role,amplitude,phase_deg,
   mass_normalised_kg^-1/2`` (shapes over nodes of a roving or several-setup table; header
   only without them);

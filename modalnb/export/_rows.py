@@ -26,7 +26,7 @@ __all__ = [
 
 MODE_COLUMNS = ("mode", "frequency_hz", "damping_ratio", "frequency_hz_std", "damping_ratio_std", "regime")
 SHAPE_COLUMNS = ("mode", "channel", "amplitude", "phase_deg")
-HIT_COLUMNS = ("hit", "accepted", "reason", "warnings")
+HIT_COLUMNS = ("hit", "accepted", "reason", "warnings", "notes")
 NODE_SHAPE_COLUMNS = ("mode", "node", "node_name", "direction", "role", "amplitude", "phase_deg",
                       "mass_normalised_kg^-1/2")
 
@@ -106,19 +106,27 @@ def node_shapes_rows(result: xr.Dataset) -> list[dict[str, Any]]:
 
 
 def hits_rows(result: xr.Dataset, checks: xr.Dataset | None = None) -> list[dict[str, Any]]:
-    """One dict per hit: ``hit, accepted, reason, warnings``.
+    """One dict per hit: ``hit, accepted, reason, warnings, notes``.
 
     ``accepted``/``reason`` are the decisions the fit used (``hit_accepted``,
-    ``hit_reason`` of the result); ``warnings`` come from the hit checks.
+    ``hit_reason`` of the result); ``warnings`` and ``notes`` (advisories that neither
+    reject nor warn) come from the hit checks.
     """
     rows = []
-    warn = {}
-    if checks is not None and "warnings" in checks:
-        warn = {int(h): str(w) for h, w in zip(checks["hit"].values, checks["warnings"].values, strict=True)}
-    if "hit_warnings" in result:
-        warn = {int(h): str(w) for h, w in zip(result["hit"].values, result["hit_warnings"].values, strict=True)}
+
+    def column(name: str) -> dict[int, str]:
+        out: dict[int, str] = {}
+        if checks is not None and name in checks:
+            out = {int(h): str(w) for h, w in zip(checks["hit"].values, checks[name].values, strict=True)}
+        if f"hit_{name}" in result:
+            out = {int(h): str(w) for h, w in zip(result["hit"].values, result[f"hit_{name}"].values,
+                                                  strict=True)}
+        return out
+
+    warn, notes = column("warnings"), column("notes")
     for h, a, r in zip(result["hit"].values, result["hit_accepted"].values, result["hit_reason"].values, strict=True):
-        rows.append({"hit": int(h), "accepted": bool(a), "reason": str(r), "warnings": warn.get(int(h), "")})
+        rows.append({"hit": int(h), "accepted": bool(a), "reason": str(r), "warnings": warn.get(int(h), ""),
+                     "notes": notes.get(int(h), "")})
     return rows
 
 

@@ -1,15 +1,41 @@
-"""Self-contained, offline HTML report of one analysis (plotly with the library embedded).
+"""The HTML report: one analysis as a self-contained, offline test document.
+
+The page is made of :data:`SECTIONS`, each an ``(id, title, function)``; ``function(ctx)``
+returns the section's HTML fragment from a :class:`ReportContext` (records, table, hit
+checks, recipe, fitted model). In order: the title block (what was analysed, when, by whom,
+with which modalnb and which records), the caution, the modal table, the damping
+cross-checks, the poles set aside, the mode shapes (one small table per mode), the hit
+decisions, the figures, then any ``extra_sections`` and, last, the recipe pretty-printed.
+
+Wiring in another section takes one line, either as an entry of :data:`SECTIONS`::
+
+    ("frf", "Frequency response", lambda ctx: frf_section_html(ctx.records, ctx.result)),
+
+or per call, ``report_html(..., extra_sections=[frf_section_html])``: an extra section is a
+``(title, html_fragment)`` pair or a callable ``fn(records, result)`` returning a fragment
+or a ``(title, fragment)`` pair. A fragment's plotly figures must not carry plotly.js
+(``include_plotlyjs=False``): the page embeds it once, in its head.
+
+Every number goes through the one formatter (:mod:`modalnb._numbers`): values with their
+standard uncertainty as ``value ± u`` rounded as JCGM 100:2008 (GUM) 7.2.6 says, damping
+in per cent, no e-notation; the files keep full precision. Every text that comes from a
+file (channel names, reasons, titles, notes) is HTML-escaped. Colours and the mode-line
+style come from :data:`modalnb._display.PALETTE`, shared with the notebook widgets. The
+page fits a 1,280 px window (tables wrap, figures follow the page width) and has a print
+stylesheet (A4 or Letter: page margins in mm, no table row or figure split across pages).
 
 Plotly is imported inside the functions, so importing this module keeps the headless core
-free of plotting code. Every text that comes from a file (channel names, reasons, titles)
-is HTML-escaped before it reaches the page or a figure.
+free of plotting code.
 """
 
 from __future__ import annotations
 
+import datetime as _dt
 import html
-import math
+import json
 import os
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -17,31 +43,341 @@ import numpy as np
 import xarray as xr
 
 from .._display import PALETTE, decimate_for_display
-from .._errors import ModalnbError
+from .._errors import ModalnbError, RecipeError
 from .._files import atomic_write_text
-from ._aside import ASIDE_COLUMNS, ASIDE_TITLE, aside_rows
-from ._rows import CAUTION, hits_rows, modes_rows
+from .._numbers import format_quantity
+from ..recipe import Recipe, package_version
+from ._aside import ASIDE_TITLE, aside_rows
+from ._cells import damping_cell, is_number, number_cell, pm_cell
+from ._rows import CAUTION, _value, hits_rows
 
-__all__ = ["write_report", "report_html"]
+__all__ = ["SECTIONS", "ReportContext", "write_report", "report_html", "checksum_short"]
+
+#: An extra section: (title, HTML fragment), or fn(records, result) -> fragment or (title, fragment).
+ExtraSection = tuple[str, str] | Callable[..., Any]
+
 
 def _e(x: Any) -> str:
     return html.escape(str(x), quote=True)
 
 
-def _fmt(x: Any) -> str:
-    if isinstance(x, bool):
-        return "true" if x else "false"
-    if isinstance(x, float):
-        return "nan" if math.isnan(x) else f"{x:.6g}"
-    return str(x)
+def checksum_short(checksum: str | None) -> str:
+    """A records checksum as the title block shows it: the algorithm and 12 hex digits.
+
+    Examples
+    --------
+    >>> checksum_short("sha256:3d0db8de7f8cc33998bcc8556ffb8aad")
+    'sha256:3d0db8de7f8c'
+    >>> checksum_short(None)
+    'not recorded'
+    """
+    if not checksum:
+        return "not recorded"
+    algo, _, digest = str(checksum).rpartition(":")
+    return f"{algo}:{digest[:12]}" if algo else digest[:12]
 
 
-def _table(rows: list[dict[str, Any]], columns: list[str], css: str) -> str:
-    head = "".join(f"<th>{_e(c)}</th>" for c in columns)
+@dataclass
+class ReportContext:
+    """What every section function reads (built once by :func:`report_html`)."""
+
+    records: xr.Dataset
+    result: xr.Dataset
+    checks: xr.Dataset | None
+    model: xr.DataArray | None
+    recipe: Recipe | None
+    heading: str
+    analysed_at: str
+
+    def var(self, name: str, k: int) -> Any:
+        """Per-mode value `name` of mode position `k` (None when the table lacks it)."""
+        return _value(self.result[name].values[k]) if name in self.result else None
+
+    @property
+    def n_modes(self) -> int:
+        return int(self.result.sizes.get("mode", 0))
+
+    @property
+    def channels(self) -> list[str]:
+        return [str(c) for c in self.result["channel"].values] if "channel" in self.result.coords \
+            else [str(c) for c in self.records["channel"].values]
+
+
+# -- building blocks -------------------------------------------------------------------------
+
+def _table(head: Sequence[str], rows: Sequence[Sequence[str]], css: str, *,
+           numeric: Sequence[int] = (), words: Sequence[int] = (),
+           caption: str | None = None) -> str:
+    """An HTML table; every cell escaped; `numeric` columns right-aligned and unbroken,
+    `words` columns broken only between words (other cells anywhere, to fit the page)."""
+    num, wrd = set(numeric), set(words)
+
+    def cls(i: int) -> str:
+        return " class=num" if i in num else (" class=word" if i in wrd else "")
+
+    cap = f"<caption>{_e(caption)}</caption>" if caption else ""
+    th = "".join(f'<th{" class=num" if i in num else ""}>{_e(h)}</th>' for i, h in enumerate(head))
     body = "".join(
-        "<tr>" + "".join(f"<td>{_e(_fmt(r.get(c, '')))}</td>" for c in columns) + "</tr>" for r in rows
-    )
-    return f'<table class="{css}"><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>'
+        "<tr>" + "".join(f"<td{cls(i)}>{_e(c)}</td>" for i, c in enumerate(r)) + "</tr>"
+        for r in rows)
+    return f'<table class="{css}">{cap}<thead><tr>{th}</tr></thead><tbody>{body}</tbody></table>'
+
+
+def _text(x: Any) -> str:
+    x = _value(x)
+    return "-" if x is None or x == "" else str(x)
+
+
+def _figure_html(fig: Any) -> str:
+    return fig.to_html(full_html=False, include_plotlyjs=False, default_width="100%",
+                       config={"displaylogo": False, "responsive": True})
+
+
+# -- sections ---------------------------------------------------------------------------------
+
+def _title_block(ctx: ReportContext) -> str:
+    r = ctx.recipe
+    checksum = (r.records_checksum if r else None) or ctx.result.attrs.get("input_checksum")
+    rows = [
+        ("Structure / test", (r.title if r and r.title else "not given")),
+        ("Analysis date", ctx.analysed_at),
+        ("Analyst", (r.analyst if r and r.analyst else "not given")),
+        ("Records", (r.source if r and r.source else str(ctx.records.attrs.get("source", "not given")))),
+        ("Records checksum", checksum_short(checksum)),
+        ("modalnb version", package_version()),
+    ]
+    if r and r.replayed_on_checksum:
+        rows.append(("Replayed on records", checksum_short(r.replayed_on_checksum)
+                     + " (other records than the recipe was made on: the table may differ)"))
+    if r and r.created_with and r.created_with != f"modalnb {package_version()}":
+        rows.append(("Recipe written by", r.created_with))
+    rows.append(("Notes", (r.notes if r and r.notes else "none")))
+    body = "".join(f"<tr><th scope=row>{_e(k)}</th><td>{_e(v)}</td></tr>" for k, v in rows)
+    return f'<table class="titleblock"><tbody>{body}</tbody></table>'
+
+
+def _caution(ctx: ReportContext) -> str:
+    return f'<p class="caution"><b>Caution.</b> {_e(CAUTION)}</p>'
+
+
+def _modal_table(ctx: ReportContext) -> str:
+    if ctx.n_modes == 0:
+        return "<p><i>No modes in the table.</i></p>"
+    head = ["Mode", "Natural frequency f_n [Hz]", "Damping ratio ζ [%]", "Quality factor Q",
+            "Damped frequency f_d [Hz]", "Regime", "Status"]
+    rows = []
+    for k in range(ctx.n_modes):
+        z = ctx.var("damping_ratio", k)
+        q = ctx.var("q_factor", k)
+        if q is None and is_number(z) and z > 0:
+            q = 1 / (2 * z)
+        rows.append([
+            _text(ctx.result["mode"].values[k]),
+            pm_cell(ctx.var("frequency_hz", k), ctx.var("frequency_hz_std", k), "Hz"),
+            pm_cell(z, ctx.var("damping_ratio_std", k), "%", scale=100),
+            number_cell(q, "ratio"),
+            number_cell(ctx.var("damped_frequency_hz", k), "frequency_hz"),
+            _text(ctx.var("regime", k)), _text(ctx.var("status", k)),
+        ])
+    note = ("<p class=note>Each value with its standard uncertainty (one standard deviation of "
+            "the fit, coverage factor 1), rounded as JCGM 100:2008 (GUM) 7.2.6 says: the "
+            "uncertainty to two significant digits, the value to the same decimal place.</p>")
+    return _table(head, rows, "modes", numeric=(1, 2, 3, 4), words=(0, 5, 6)) + note
+
+
+_XCHECKS = (("xcheck_log_decrement_damping", "Log decrement ζ [%]", "log_decrement"),
+            ("xcheck_half_power_damping", "Half-power bandwidth ζ [%]", "half_power"),
+            ("xcheck_hilbert_damping", "Hilbert envelope ζ [%]", "hilbert"))
+
+
+def _cross_checks(ctx: ReportContext) -> str:
+    present = [x for x in _XCHECKS if x[0] in ctx.result]
+    if not present or ctx.n_modes == 0:
+        return "<p><i>No cross-checks in this table.</i></p>"
+    head = ["Mode", "Fit ζ [%]", *(x[1] for x in present), "Note"]
+    rows = [[_text(ctx.result["mode"].values[k]), damping_cell(ctx.var("damping_ratio", k)),
+             *(damping_cell(ctx.var(x[0], k)) for x in present), _text(ctx.var("xcheck_note", k))]
+            for k in range(ctx.n_modes)]
+    out = _table(head, rows, "xchecks", numeric=tuple(range(1, len(present) + 2)),
+                 words=(0, len(present) + 2))
+    biases = ctx.result.attrs.get("cross_check_biases")
+    if isinstance(biases, str):
+        try:
+            biases = json.loads(biases)
+        except json.JSONDecodeError:
+            biases = None
+    if isinstance(biases, dict):
+        names = {x[2]: x[1].removesuffix(" ζ [%]") for x in _XCHECKS}
+        items = "".join(f"<li><b>{_e(names.get(k, k))}</b>: {_e(v)}</li>" for k, v in biases.items())
+        out += ("<p class=note>Single-mode estimates from the band-passed data, to compare "
+                f"with the fit's damping; their known biases:</p><ul class=note>{items}</ul>")
+    return out
+
+
+def _aside(ctx: ReportContext) -> str:
+    rows = aside_rows(ctx.result)
+    if not rows:
+        return "<p><i>None: every fitted pole is a mode of the table.</i></p>"
+    strongest = None
+    if "mode_energy" in ctx.result and ctx.n_modes:
+        e = np.asarray(ctx.result["mode_energy"].values, float)
+        strongest = float(np.nanmax(e)) if np.isfinite(e).any() else None
+    head = ["Pole", "Frequency [Hz]", "Damping ratio ζ [%]",
+            "Energy [% of strongest mode]" if strongest else "Energy", "Reason"]
+    body = []
+    for r in rows:
+        en = r.get("energy")
+        en_text = (number_cell(en / strongest, "percent") if strongest and is_number(en)
+                   else number_cell(en, "ratio"))
+        body.append([_text(r["pole"]), pm_cell(r["frequency_hz"], r["frequency_hz_std"], "Hz"),
+                     damping_cell(r["damping_ratio"]), en_text, _text(r["reason"])])
+    return ("<p class=note>Fitted poles that are residual terms of the model, not modes (they "
+            "absorb the force pulse, an offset, out-of-band modes or noise; they stay in the "
+            "model so the modes' numbers do not change), each with the reason.</p>"
+            + _table(head, body, "aside", numeric=(1, 2, 3), words=(0,)))
+
+
+def _shapes(ctx: ReportContext) -> str:
+    if ctx.n_modes == 0 or "shape_amplitude" not in ctx.result:
+        return "<p><i>No mode shapes in this table.</i></p>"
+    amp = np.asarray(ctx.result["shape_amplitude"].values, float)
+    phase = np.asarray(ctx.result["shape_phase_deg"].values, float) \
+        if "shape_phase_deg" in ctx.result else np.full_like(amp, np.nan)
+    coords = ctx.result.coords
+    extra = [c for c in ("node", "direction") if c in coords and coords[c].dims == ("channel",)]
+    blocks = []
+    for k in range(ctx.n_modes):
+        f = pm_cell(ctx.var("frequency_hz", k), ctx.var("frequency_hz_std", k), "Hz")
+        cap = f"Mode {_text(ctx.result['mode'].values[k])}: f_n = {f}" + ("" if f.endswith("Hz") else " Hz")
+        rows = []
+        for c, ch in enumerate(ctx.channels):
+            rows.append([ch, *(_text(coords[x].values[c]) for x in extra),
+                         number_cell(amp[k, c], "amplitude"), number_cell(phase[k, c], "phase_deg")])
+        head = ["Channel", *(x.capitalize() for x in extra), "Amplitude", "Phase [°]"]
+        n = len(head)
+        blocks.append(_table(head, rows, "shapes", numeric=(n - 2, n - 1), caption=cap))
+    return ("<p class=note>Amplitude normalised to 1 on the largest channel, phase in degrees "
+            "relative to it; sensor direction signs removed.</p>"
+            f'<div class="shape-grid">{"".join(blocks)}</div>')
+
+
+def _hits(ctx: ReportContext) -> str:
+    rows = hits_rows(ctx.result, ctx.checks)
+    ch = ctx.checks
+    by_hit: dict[int, dict[str, Any]] = {}
+    if ch is not None:
+        for i, h in enumerate(ch["hit"].values):
+            by_hit[int(h)] = {n: _value(ch[n].values[i]) for n in
+                              ("user_decision", "peak_force", "pulse_duration_s", "snr_db", "notes")
+                              if n in ch and ch[n].dims == ("hit",)}
+    force_units = str(ctx.records["force"].attrs.get("units", "")) if "force" in ctx.records else ""
+    step = 1.0 / float(ctx.records.attrs["sample_rate"]) if "sample_rate" in ctx.records.attrs else None
+    head = ["Hit", "Used in fit", "Decision by", f"Peak force [{force_units or '-'}]",
+            "Pulse [ms]", "Response SNR [dB]", "Reason", "Warnings", "Notes"]
+    body = []
+    for r in rows:
+        m = by_hit.get(r["hit"], {})
+        decision = m.get("user_decision") or ""
+        dur = m.get("pulse_duration_s")
+        dur_text = "-"
+        if is_number(dur) and np.isfinite(dur):
+            dur_text = format_quantity(dur * 1e3, "ratio", unit=False) if step is None else \
+                _ms(dur, step)
+        body.append([
+            str(r["hit"]), "yes" if r["accepted"] else "no",
+            f"you ({decision})" if decision else "checks",
+            number_cell(m.get("peak_force"), "ratio") if is_number(m.get("peak_force")) else "-",
+            dur_text,
+            number_cell(m.get("snr_db"), "db") if is_number(m.get("snr_db")) else "-",
+            _text(r["reason"]), _text(r["warnings"]), _text(m.get("notes", r.get("notes", ""))),
+        ])
+    n_used = sum(1 for r in rows if r["accepted"])
+    return (f"<p>{n_used} of {len(rows)} hits used in the fit.</p>"
+            + _table(head, body, "hits", numeric=(3, 4, 5), words=(0, 1, 2)))
+
+
+def _ms(seconds: float, step: float) -> str:
+    """A duration in ms to the sample step (bare number; the heading says ms)."""
+    from .._numbers import _places, _step_decimals
+
+    return _places(seconds * 1e3, _step_decimals(step * 1e3))
+
+
+def _figures_section(ctx: ReportContext) -> str:
+    figs = _figures(ctx.records, ctx.result, ctx.model)
+    return "".join(f'<div class="figure">{_figure_html(f)}</div>' for f in figs)
+
+
+def _recipe(ctx: ReportContext) -> str:
+    parts = []
+    if ctx.recipe is not None:
+        parts.append("<p class=note>Every choice behind this table (replay it with "
+                     "<code>modalnb fit RECORDS --recipe recipe.json --out FOLDER</code>):</p>"
+                     f'<pre class="json">{_e(ctx.recipe.to_json())}</pre>')
+    else:
+        parts.append("<p><i>No recipe with this table.</i></p>")
+    settings = ctx.result.attrs.get("settings")
+    if isinstance(settings, str):
+        try:
+            settings = json.loads(settings)
+        except json.JSONDecodeError:
+            pass
+    if settings:
+        text = json.dumps(settings, indent=2, default=str) if not isinstance(settings, str) else settings
+        parts.append("<details><summary>Settings the fit used (automatic choices "
+                     f'resolved)</summary><pre class="json">{_e(text)}</pre></details>')
+    return "".join(parts)
+
+
+#: The report's sections, in page order: (id, title, fn(ctx) -> HTML fragment).
+SECTIONS: list[tuple[str, str, Callable[[ReportContext], str]]] = [
+    ("analysis", "What was analysed", _title_block),
+    ("caution", "", _caution),
+    ("modes", "Modal table", _modal_table),
+    ("cross-checks", "Damping cross-checks", _cross_checks),
+    ("aside", ASIDE_TITLE, _aside),
+    ("shapes", "Mode shapes", _shapes),
+    ("hits", "Hit decisions", _hits),
+    ("figures", "Figures", _figures_section),
+]
+
+#: The last section, after any extra ones.
+RECIPE_SECTION: tuple[str, str, Callable[[ReportContext], str]] = ("recipe", "Recipe", _recipe)
+
+
+# -- figures ----------------------------------------------------------------------------------
+
+def _label_rows(freqs: Sequence[float], span: float, min_gap: float = 0.07) -> list[int]:
+    """Row (0, 1, 2, ...) of each mode label so that labels on one row are at least
+    `min_gap` of the axis `span` apart (frequencies in any order).
+
+    Examples
+    --------
+    >>> _label_rows([100.0, 105.0, 500.0, 110.0], 1000.0)
+    [0, 1, 0, 2]
+    """
+    rows = [0] * len(freqs)
+    last: list[float] = []  # per row, the last label's x
+    for i in sorted(range(len(freqs)), key=lambda j: freqs[j]):
+        for r, x in enumerate(last):
+            if freqs[i] - x >= min_gap * span:
+                rows[i], last[r] = r, freqs[i]
+                break
+        else:
+            rows[i] = len(last)
+            last.append(freqs[i])
+    return rows
+
+
+def _layout(fig: Any, title: str, height: int) -> None:
+    """Title at the top left, legend in one row under the plot: the two never meet."""
+    fig.update_layout(title={"text": title, "x": 0, "xanchor": "left", "font": {"size": 15}},
+                      height=height, margin={"t": 60, "l": 70, "r": 20, "b": 90},
+                      legend={"orientation": "h", "x": 0, "y": -0.18, "yanchor": "top"},
+                      paper_bgcolor="white", plot_bgcolor="white",
+                      font={"color": PALETTE.text}, colorway=list(PALETTE.series))
+    fig.update_xaxes(gridcolor=PALETTE.grid, zeroline=False)
+    fig.update_yaxes(gridcolor=PALETTE.grid, zeroline=False)
 
 
 def _figures(records: xr.Dataset, result: xr.Dataset, model: xr.DataArray | None) -> list[Any]:
@@ -53,37 +389,52 @@ def _figures(records: xr.Dataset, result: xr.Dataset, model: xr.DataArray | None
     hits = records["hit"].values
     accepted = dict(zip(result["hit"].values.tolist(), result["hit_accepted"].values.tolist(), strict=True))
     channels = [str(c) for c in records["channel"].values]
-    # 1. spectra summed over channels, modes marked
+    # 1. spectrum summed over channels, modes marked (labels staggered so they never overlap)
     fs = float(records.attrs.get("sample_rate", 1 / np.median(np.diff(time))))
     use = time >= 0
     acc = [i for i, h in enumerate(hits) if accepted.get(int(h), True)] or list(range(len(hits)))
     spec = np.abs(np.fft.rfft(records["response"].values[acc][:, :, use], axis=-1)).mean(axis=0).sum(axis=0)
     freqs = np.fft.rfftfreq(int(use.sum()), 1 / fs)
     fx, fy = decimate_for_display(freqs, spec)
-    fig = go.Figure(go.Scatter(x=fx, y=fy, mode="lines", line={"color": PALETTE.measured},
+    fig = go.Figure(go.Scatter(x=fx, y=fy, mode="lines", line={"color": PALETTE.measured, "width": 1},
                                name="spectrum (sum of channels)"))
-    for k, f in enumerate(result["frequency_hz"].values.tolist()):
-        if np.isfinite(f):
-            fig.add_vline(x=f, line={"color": PALETTE.mode, "dash": "dot"}, annotation_text=f"mode {k + 1}")
-    fig.update_layout(title="Response spectrum, accepted hits (dotted: fitted modes)", xaxis_title="frequency [Hz]",
-                      yaxis_title=f"|X| [{_e(records['response'].attrs.get('units', ''))}·s]", yaxis_type="log",
-                      height=380, margin={"t": 50})
+    f_modes = [float(f) for f in result["frequency_hz"].values.tolist()] if "frequency_hz" in result else []
+    shown = [(k, f) for k, f in enumerate(f_modes) if np.isfinite(f)]
+    rows = _label_rows([f for _, f in shown], float(freqs[-1]) if freqs.size else 1.0)
+    n_rows = max(rows, default=0) + 1
+    for (k, f), row in zip(shown, rows, strict=True):
+        fig.add_vline(x=f, line=PALETTE.mode_line)
+        fig.add_annotation(x=f, y=1 + 0.07 * (n_rows - 1 - row), yref="paper", yanchor="bottom",
+                           text=f"mode {k + 1}", showarrow=False, font={"color": PALETTE.mode, "size": 11},
+                           bgcolor=PALETTE.label_bg)
+    if shown:  # a legend entry that says what the dashed lines are
+        fig.add_trace(go.Scatter(x=[None], y=[None], mode="lines", line=PALETTE.mode_line,
+                                 name="fitted mode (natural frequency)"))
+    _layout(fig, "Response spectrum of the accepted hits", 420 + 20 * (n_rows - 1))
+    fig.update_layout(margin={"t": 80 + 22 * (n_rows - 1)})
+    fig.update_xaxes(title_text="frequency [Hz]")
+    fig.update_yaxes(title_text=f"|X| [{records['response'].attrs.get('units', '')}·s]", type="log")
     figs.append(fig)
     # 2. force pulses per hit
     if "force" in records:
-        fig = go.Figure(layout={"colorway": list(PALETTE.series)})
-        win = (time >= -0.002) & (time <= 0.02)
+        fig = go.Figure()
+        win = (time >= -0.001) & (time <= 0.008)  # the pulse and a second tap within 8 ms
         for i, h in enumerate(hits):
-            fig.add_trace(go.Scatter(x=time[win] * 1e3, y=records["force"].values[i, win], mode="lines",
-                                     name=f"hit {int(h)}" + ("" if accepted.get(int(h), True) else " (rejected)")))
-        fig.update_layout(title="Hammer force per hit", xaxis_title="time [ms]",
-                          yaxis_title=f"force [{_e(records['force'].attrs.get('units', ''))}]", height=340, margin={"t": 50})
+            ok = accepted.get(int(h), True)
+            fig.add_trace(go.Scatter(
+                x=time[win] * 1e3, y=records["force"].values[i, win], mode="lines",
+                line={"width": 1.5 if ok else 1, "dash": "solid" if ok else "dot",
+                      "color": PALETTE.series[i % len(PALETTE.series)] if ok else PALETTE.rejected},
+                name=f"hit {int(h)}" + ("" if ok else " (not used)")))
+        _layout(fig, "Hammer force per hit", 380)
+        fig.update_xaxes(title_text="time [ms]")
+        fig.update_yaxes(title_text=f"force [{records['force'].attrs.get('units', '')}]")
         figs.append(fig)
     # 3. measured vs model and residual, first accepted hit, every channel
     i0 = acc[0]
     n_ch = len(channels)
-    fig = make_subplots(rows=n_ch, cols=1, shared_xaxes=True, vertical_spacing=0.02,
-                        subplot_titles=[_e(c) for c in channels])
+    fig = make_subplots(rows=n_ch, cols=1, shared_xaxes=True, vertical_spacing=0.03,
+                        subplot_titles=[c if len(c) <= 60 else c[:59] + "…" for c in channels])
     for c in range(n_ch):
         y = records["response"].values[i0, c]
         tt, yy = decimate_for_display(time, y)
@@ -98,12 +449,92 @@ def _figures(records: xr.Dataset, result: xr.Dataset, model: xr.DataArray | None
             sel = np.isin(time, mt)
             tt, yy = decimate_for_display(mt, y[sel] - m.values)
             fig.add_trace(go.Scatter(x=tt, y=yy, mode="lines", line={"color": PALETTE.residual, "width": 1},
-                                     name="residual", legendgroup="r", showlegend=c == 0), row=c + 1, col=1)
-    fig.update_layout(title=f"Hit {int(hits[i0])}: measured, fitted model and residual", height=max(400, 170 * n_ch),
-                      margin={"t": 60})
+                                     name="residual (measured - model)", legendgroup="r", showlegend=c == 0),
+                          row=c + 1, col=1)
+    units = str(records["response"].attrs.get("units", ""))
+    _layout(fig, f"Hit {int(hits[i0])}: measured, fitted model and residual, per channel"
+            + (f" [{units}]" if units else ""),
+            max(420, 150 * n_ch + 140))
+    fig.update_layout(legend={"y": -40 / max(420, 150 * n_ch + 140)})
     fig.update_xaxes(title_text="time [s]", row=n_ch, col=1)
     figs.append(fig)
     return figs
+
+
+# -- the page ---------------------------------------------------------------------------------
+
+def _css() -> str:
+    p = PALETTE
+    return f"""
+*{{box-sizing:border-box}}
+body{{font-family:system-ui,-apple-system,"Segoe UI",sans-serif;margin:0 auto;padding:1.2em 1.5em;
+max-width:1180px;color:{p.text};line-height:1.4;overflow-wrap:break-word}}
+h1{{font-size:1.6em;margin:.2em 0 .4em}}h2{{font-size:1.25em;margin:1.4em 0 .4em;
+border-bottom:2px solid {p.grid};padding-bottom:.15em}}
+table{{border-collapse:collapse;margin:.4em 0 1em;max-width:100%}}
+td,th{{border:1px solid {p.grid};padding:.25em .55em;text-align:left;vertical-align:top}}
+td{{overflow-wrap:anywhere}}td.word{{overflow-wrap:normal}}
+th{{background:{p.header};font-weight:600}}
+td.num,th.num{{text-align:right;font-variant-numeric:tabular-nums}}td.num{{white-space:nowrap}}
+caption{{text-align:left;font-weight:600;padding:.2em 0}}
+table.titleblock th{{width:12em}}table.titleblock{{min-width:60%}}table.titleblock td{{white-space:pre-line}}
+table.hits{{width:100%}}table.hits td{{font-size:.93em}}
+.shape-grid{{display:grid;grid-template-columns:repeat(auto-fill,minmax(min(100%,420px),1fr));gap:.2em 1.2em}}
+.shape-grid>*{{min-width:0}}
+.shape-grid table{{width:100%}}
+.caution{{border-left:5px solid {p.error};background:{p.caution};padding:.6em 1em}}
+.note{{color:{p.note};font-size:.92em}}ul.note{{margin-top:0}}
+code{{background:{p.header};padding:0 .2em}}
+pre.json{{background:{p.header};padding:.7em 1em;white-space:pre-wrap;overflow-wrap:anywhere;
+font-size:.85em;max-width:100%}}
+.figure{{width:100%;margin:.4em 0 1em;overflow:hidden}}
+@media print{{
+  @page{{margin:14mm 12mm}}
+  body{{max-width:none;padding:0;font-size:10pt}}
+  table{{font-size:8.5pt}}td,th{{padding:.2em .35em}}td.num{{white-space:normal}}
+  h2{{break-after:avoid;page-break-after:avoid}}
+  tr,caption,.figure,.caution,table.titleblock,.shape-grid table{{break-inside:avoid;page-break-inside:avoid}}
+  thead{{display:table-header-group}}
+  section#figures,section#recipe{{break-before:page;page-break-before:always}}
+  .figure .js-plotly-plot,.figure .plot-container{{max-width:100%}}
+  details{{display:block}}details>summary{{list-style:none}}
+  a{{color:inherit;text-decoration:none}}
+}}
+"""
+
+
+# Plotly keeps a figure's pixel width; before printing, let each figure follow the page
+# width (Plotly.Plots.resize), and back after.
+_PRINT_JS = """
+(function(){function fit(){if(!window.Plotly)return;
+document.querySelectorAll('.js-plotly-plot').forEach(function(p){Plotly.Plots.resize(p);});}
+window.addEventListener('beforeprint',fit);window.addEventListener('afterprint',fit);})();
+"""
+
+
+def _extra(item: ExtraSection, records: xr.Dataset, result: xr.Dataset) -> tuple[str, str]:
+    if callable(item):
+        out = item(records, result)
+    else:
+        out = item
+    if isinstance(out, tuple) and len(out) == 2:
+        return str(out[0]), str(out[1])
+    if isinstance(out, str):
+        return "", out
+    raise ModalnbError(f"report extra section must give an HTML fragment or (title, fragment), "
+                       f"got {type(out).__name__}.")
+
+
+def _recipe_of(result: xr.Dataset, recipe: Recipe | None) -> Recipe | None:
+    if recipe is not None:
+        return recipe
+    text = result.attrs.get("recipe")
+    if isinstance(text, str):
+        try:
+            return Recipe.from_json(text)
+        except RecipeError:
+            return None
+    return None
 
 
 def report_html(
@@ -112,9 +543,12 @@ def report_html(
     checks: xr.Dataset | None = None,
     *,
     model: xr.DataArray | None = None,
-    title: str = "modalnb report",
+    recipe: Recipe | None = None,
+    title: str | None = None,
+    extra_sections: Sequence[ExtraSection] | None = None,
+    analysed_at: _dt.datetime | str | None = None,
 ) -> str:
-    """The report as one HTML string (plotly.js embedded once; works offline).
+    """The report as one HTML page (plotly.js embedded once; works offline).
 
     Parameters
     ----------
@@ -123,12 +557,20 @@ def report_html(
     result : xarray.Dataset
         Output of :func:`modalnb.fit_modes`.
     checks : xarray.Dataset, optional
-        Output of :func:`modalnb.check_hits` (warnings column).
+        Output of :func:`modalnb.check_hits` (decision by, warnings, notes, hit measures).
     model : xarray.DataArray, optional
         Fitted model over (hit, channel, time) in the fit window, drawn over the data.
         Default: rebuilt from the table's poles (:func:`modalnb.estimate.model_traces`).
-    title : str
-        Page title (escaped).
+    recipe : Recipe, optional
+        The recipe behind the table (title block, last section). Default: the one the
+        table carries (``result.attrs["recipe"]``).
+    title : str, optional
+        The page heading; default the recipe's ``title``, else "Modal analysis report".
+    extra_sections : list, optional
+        More sections, placed before the recipe: ``(title, html_fragment)`` pairs or
+        callables ``fn(records, result)`` giving a fragment or a ``(title, fragment)``.
+    analysed_at : datetime or str, optional
+        The analysis date shown (ISO 8601); default now, in UTC, to the second.
 
     Returns
     -------
@@ -144,6 +586,8 @@ def report_html(
     >>> page.startswith("<!DOCTYPE html>"), "<title>bay &lt;3&gt;</title>" in page
     (True, True)
     """
+    from plotly.offline import get_plotlyjs
+
     if model is None:
         from ..estimate import model_traces
 
@@ -151,57 +595,30 @@ def report_html(
             model = model_traces(records, result)
         except (ModalnbError, np.linalg.LinAlgError):
             model = None  # the report still shows the data, the table and the decisions
-    figs = _figures(records, result, model)
-    parts = []
-    for i, fig in enumerate(figs):
-        parts.append(fig.to_html(full_html=False, include_plotlyjs=(i == 0), config={"displaylogo": False}))
-    m_rows = modes_rows(result)
-    m_cols = [c for c in ("mode", "frequency_hz", "frequency_hz_std", "damping_ratio", "damping_ratio_std", "regime",
-                          "q_factor", "damped_frequency_hz", "xcheck_log_decrement_damping",
-                          "xcheck_half_power_damping", "xcheck_hilbert_damping", "status")
-              if not m_rows or c in m_rows[0]]
-    s_rows = []
-    for k, mode in enumerate(result["mode"].values.tolist()):
-        for c, ch in enumerate(result["channel"].values.tolist()):
-            s_rows.append({"mode": mode, "channel": ch,
-                           "amplitude": float(result["shape_amplitude"].values[k, c]),
-                           "phase_deg": float(result["shape_phase_deg"].values[k, c])})
-    h_rows = hits_rows(result, checks)
-    attrs = {k: v for k, v in result.attrs.items() if k != "recipe"}
-    pal = PALETTE
-    css = f"""
-body{{font-family:system-ui,sans-serif;margin:1.5em auto;max-width:1100px;color:{pal.text}}}
-table{{border-collapse:collapse;margin:.6em 0 1.4em}}td,th{{border:1px solid {pal.grid};padding:.25em .6em;text-align:left}}
-th{{background:{pal.header}}}.caution{{border-left:5px solid {pal.error};background:{pal.caution};padding:.6em 1em}}
-code{{background:{pal.header};padding:0 .2em}}
-"""
-    body = [
-        f"<h1>{_e(title)}</h1>",
-        f'<p class="caution"><b>Caution.</b> {_e(CAUTION)}</p>',
-        "<h2>Modal table</h2>",
-        _table(m_rows, m_cols, "modes"),
-        "<h2>Mode shapes</h2>",
-        "<p>Amplitude normalised to 1 on the largest channel, phase in degrees relative to it; "
-        "sensor direction signs removed.</p>",
-        _table(s_rows, ["mode", "channel", "amplitude", "phase_deg"], "shapes"),
-        f"<h2>{_e(ASIDE_TITLE)}</h2>",
-        "<p>Fitted poles that are residual terms of the model, not modes (they absorb the "
-        "force pulse, an offset, out-of-band modes or noise; they stay in the model so the "
-        "modes' numbers do not change), each with the reason.</p>",
-        _table(aside_rows(result), list(ASIDE_COLUMNS), "aside") if aside_rows(result)
-        else "<p><i>none</i></p>",
-        "<h2>Hit decisions</h2>",
-        _table(h_rows, ["hit", "accepted", "reason", "warnings"], "hits"),
-        "<h2>Figures</h2>",
-        *parts,
-        "<h2>Settings</h2>",
-        f"<pre>{_e(attrs)}</pre>",
-    ]
+    rec = _recipe_of(result, recipe)
+    heading = title or (rec.title if rec and rec.title else "Modal analysis report")
+    if analysed_at is None:
+        analysed_at = _dt.datetime.now(_dt.UTC).replace(microsecond=0)
+    when = analysed_at.isoformat() if isinstance(analysed_at, _dt.datetime) else str(analysed_at)
+    ctx = ReportContext(records, result, checks, model, rec, heading, when)
+    sections = [(sid, stitle, fn(ctx)) for sid, stitle, fn in SECTIONS]
+    for i, item in enumerate(extra_sections or ()):
+        stitle, frag = _extra(item, records, result)
+        sections.append((f"extra-{i + 1}", stitle, frag))
+    sid, stitle, fn = RECIPE_SECTION
+    sections.append((sid, stitle, fn(ctx)))
+    body = [f'<header><h1>{_e(heading)}</h1><p class="note">Modal analysis of impact-hammer '
+            f"records with modalnb {_e(package_version())}.</p></header>"]
+    for sid, stitle, frag in sections:
+        h2 = f"<h2>{_e(stitle)}</h2>" if stitle else ""
+        body.append(f'<section id="{_e(sid)}">{h2}{frag}</section>')
     return (
         "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
-        f"<title>{_e(title)}</title><style>{css}</style></head><body>\n"
+        '<meta name="viewport" content="width=device-width, initial-scale=1">'
+        f"<title>{_e(heading)}</title><style>{_css()}</style>"
+        f'<script type="text/javascript">{get_plotlyjs()}</script></head><body>\n'
         + "\n".join(body)
-        + "\n</body></html>\n"
+        + f"\n<script>{_PRINT_JS}</script>\n</body></html>\n"
     )
 
 
@@ -213,6 +630,9 @@ def write_report(
     **kwargs: Any,
 ) -> Path:
     """Write :func:`report_html` to `path` atomically and return the path.
+
+    Keyword arguments are those of :func:`report_html` (``recipe``, ``title``,
+    ``extra_sections``, ...).
 
     Examples
     --------

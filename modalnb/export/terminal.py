@@ -1,4 +1,9 @@
-"""The modal table as aligned text for the terminal (the CLI's printout)."""
+"""The modal table as aligned text for the terminal (the CLI's printout).
+
+Every number goes through the one formatter (:mod:`modalnb._numbers`, via :mod:`._cells`):
+each value with its standard uncertainty as ``value ± u``, both rounded to the same
+decimal place as JCGM 100:2008 (GUM) 7.2.6 says, damping in per cent.
+"""
 
 from __future__ import annotations
 
@@ -7,6 +12,7 @@ import math
 import xarray as xr
 
 from ._aside import ASIDE_TITLE, aside_rows
+from ._cells import damping_cell, number_cell, pm_cell
 from ._rows import _value
 
 __all__ = ["format_modal_table"]
@@ -15,10 +21,13 @@ __all__ = ["format_modal_table"]
 def format_modal_table(result: xr.Dataset) -> str:
     """The modal table as aligned text with units in the header (for the terminal).
 
-    When the fit set poles aside (residual terms, not modes), a second table
-    "Poles set aside (not modes)" follows with the reason for each. A table with shapes
-    over nodes (roving hammer, several setups) is followed by them: per mode the modal
-    mass and phase collinearity, per node amplitude and phase of every mode.
+    Natural frequency and damping ratio are written ``value ± u`` (standard uncertainty,
+    GUM 7.2.6: u to at most two significant digits, the value to the same place); damping
+    in per cent; the quality factor Q to 3 significant digits. When the fit set poles
+    aside (residual terms, not modes), a second table "Poles set aside (not modes)"
+    follows with the reason for each. A table with shapes over nodes (roving hammer,
+    several setups) is followed by them: per mode the modal mass and phase collinearity,
+    per node amplitude and phase of every mode.
 
     Examples
     --------
@@ -27,44 +36,36 @@ def format_modal_table(result: xr.Dataset) -> str:
     ...                  "damping_ratio": ("mode", [0.012]), "damping_ratio_std": ("mode", [0.0004]),
     ...                  "regime": ("mode", ["underdamped"]), "status": ("mode", ["ok"])},
     ...                 coords={"mode": [1]})
-    >>> print(format_modal_table(ds).splitlines()[0])
-    mode  f_n [Hz]  ± [Hz]  zeta [%]  ± [%]  Q [-]  regime       status
+    >>> print(format_modal_table(ds))
+    mode  f_n [Hz]        damping [%]    Q     regime       status
+    1     12.500 ± 0.010  1.200 ± 0.040  41.7  underdamped  ok
     """
-    header = ["mode", "f_n [Hz]", "± [Hz]", "zeta [%]", "± [%]", "Q [-]", "regime", "status"]
+    header = ["mode", "f_n [Hz]", "damping [%]", "Q", "regime", "status"]
     rows = []
-    for k in range(result.sizes.get("mode", 0)):
-        def g(name: str, scale: float = 1.0, fmt: str = "{:.4g}", k: int = k) -> str:
-            if name not in result:
-                return "-"
-            v = _value(result[name].values[k])
-            if isinstance(v, float):
-                return "nan" if math.isnan(v) else fmt.format(v * scale)
-            return str(v)
 
-        q = "-"
-        if "damping_ratio" in result:
-            z = float(result["damping_ratio"].values[k])
-            q = f"{1 / (2 * z):.4g}" if z > 0 else "nan"
-        if "q_factor" in result:
-            q = g("q_factor")
+    def var(name: str, k: int) -> object:
+        return _value(result[name].values[k]) if name in result else None
+
+    for k in range(result.sizes.get("mode", 0)):
+        z = var("damping_ratio", k)
+        q = var("q_factor", k)
+        if q is None and isinstance(z, float) and z > 0:
+            q = 1 / (2 * z)
         rows.append([
             str(_value(result["mode"].values[k])),
-            g("frequency_hz", fmt="{:.6g}"),
-            g("frequency_hz_std", fmt="{:.2g}"),
-            g("damping_ratio", 100, "{:.4g}"),
-            g("damping_ratio_std", 100, "{:.2g}"),
-            q,
-            g("regime"),
-            g("status"),
+            pm_cell(var("frequency_hz", k), var("frequency_hz_std", k), "Hz"),
+            pm_cell(z, var("damping_ratio_std", k), "%", scale=100),
+            number_cell(q, "ratio"),
+            str(var("regime", k) or "-"),
+            str(var("status", k) or "-"),
         ])
     lines = _aligned(header, rows)
     aside = aside_rows(result)
     if aside:
         lines += ["", f"{ASIDE_TITLE}: residual terms kept in the model, left out of the table",
-                  *_aligned(["pole", "f_n [Hz]", "± [Hz]", "zeta [%]", "reason"], [
-                      [str(r["pole"]), _num(r["frequency_hz"], "{:.6g}"),
-                       _num(r["frequency_hz_std"], "{:.2g}"),
-                       _num(r["damping_ratio"], "{:.4g}", 100), str(r["reason"])]
+                  *_aligned(["pole", "f_n [Hz]", "damping [%]", "reason"], [
+                      [str(r["pole"]), pm_cell(r["frequency_hz"], r["frequency_hz_std"], "Hz"),
+                       damping_cell(r["damping_ratio"]), str(r["reason"])]
                       for r in aside])]
     if "node_shape_amplitude" in result.data_vars:
         lines += ["", *_node_lines(result)]
@@ -98,12 +99,6 @@ def _node_lines(result: xr.Dataset) -> list[str]:
     out += ["Node shapes: amplitude (largest 1) at phase [deg], direction signs applied",
             *_aligned(["node", "dir", "role", *[f"mode {m}" for m in modes]], rows)]
     return out
-
-
-def _num(v: object, fmt: str, scale: float = 1.0) -> str:
-    if isinstance(v, (int, float)):
-        return "nan" if math.isnan(float(v)) else fmt.format(float(v) * scale)
-    return str(v)
 
 
 def _aligned(header: list[str], rows: list[list[str]]) -> list[str]:
