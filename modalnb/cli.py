@@ -252,7 +252,7 @@ def _named(source: str) -> Iterator[None]:
 
 
 def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: str,
-                   more: Any = None, post: Any = None) -> Any:
+                   more: Any = None, post: Any = None, geometry: Any = None) -> Any:
     from .export import write_modal_table
     from .pipeline import run_recipe
 
@@ -268,7 +268,7 @@ def _fit_and_write(records: Any, recipe: Any, out: Path, steps: _Steps, title: s
 
     def report(path: Path) -> None:
         steps("writing the HTML report")
-        write_report(records, result, checks, path, recipe=recipe)
+        write_report(records, result, checks, path, recipe=recipe, geometry=geometry)
 
     steps("writing the modal table")
     # one set: the report is written beside the table and the folder replaced as a whole
@@ -535,7 +535,7 @@ def _cmd_demo_roving(args: argparse.Namespace) -> int:
         return {SHAPE_VIEW_FILE: write}
 
     result, checks = _fit_and_write(ds, recipe, out, steps, title="modalnb roving-hammer demo",
-                                    more=views)
+                                    more=views, geometry=geometry)
     rejected = [f"hit {int(h)} ({r})" for h, a, r in zip(
         result["hit"].values, result["hit_accepted"].values, result["hit_reason"].values, strict=True)
         if not a]

@@ -576,6 +576,7 @@ class Analysis:
         title: str | None = None,
         analyst: str | None = None,
         notes: str | None = None,
+        geometry: Any = None,
     ) -> dict[str, Path]:
         """Write the modal table files (CSV, netCDF, JSON, recipe; ``frf.nc`` when the records
         carry force) and/or ``report.html``.
@@ -590,6 +591,8 @@ class Analysis:
             The report's title block: the structure or test analysed, who analysed it,
             free notes. Given, they are stored in the recipe (and autosaved with it), so
             a replay writes the same title block; None keeps the recipe's.
+        geometry : modalnb.geometry.Geometry, optional
+            Node positions and lines for the report's moving shape view.
 
         Returns
         -------
@@ -612,7 +615,7 @@ class Analysis:
         out = Path(out_dir)
         files: dict[str, Path] = {}
         extra = {"report.html": lambda path: write_report(
-            self.records, self.result, self.checks, path, recipe=self.recipe,
+            self.records, self.result, self.checks, path, recipe=self.recipe, geometry=geometry,
         )} if report else {}
         if table:  # one set: the folder is replaced as a whole, the report with the table
             files.update(write_modal_table(self.result, out, recipe=self.recipe, checks=self.checks,

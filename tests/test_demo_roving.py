@@ -167,4 +167,8 @@ def test_cli_roving_demo_writes_the_table_the_view_and_the_data(tmp_path, capsys
         assert (out / name).is_file(), name
     page = (out / "shape_view.html").read_text(encoding="utf-8")
     assert "modalnb-shape-placed" not in page  # every node has a position (the geometry table)
+    report = (out / "report.html").read_text(encoding="utf-8")
+    # the report carries the moving shape view on the frame's geometry and the FRF section
+    assert 'class="modalnb-shape-view"' in report and "modalnb-shape-placed" not in report
+    assert "modalnb-frf-section" in report and "No FRF" not in report
     assert main(["demo", "--roving", "--campaign", "--out", str(tmp_path / "x")]) != 0

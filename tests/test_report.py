@@ -40,11 +40,14 @@ class Tables(HTMLParser):
         self._caption: list[str] | None = None
         self._pre: list[str] | None = None
         self.pres: list[str] = []
+        self._depth = 0  # <section> nesting: a fragment may bring sections of its own
 
     def handle_starttag(self, tag, attrs):
         a = dict(attrs)
         if tag == "section":
-            self.sections.append(a.get("id", ""))
+            if self._depth == 0:  # the page's own sections only
+                self.sections.append(a.get("id", ""))
+            self._depth += 1
         elif tag == "table":
             self.tables.append({"class": a.get("class", ""), "caption": "", "rows": [],
                                 "section": self.sections[-1] if self.sections else ""})
@@ -58,7 +61,9 @@ class Tables(HTMLParser):
             self._pre = []
 
     def handle_endtag(self, tag):
-        if tag in ("td", "th") and self._cell is not None:
+        if tag == "section":
+            self._depth -= 1
+        elif tag in ("td", "th") and self._cell is not None:
             self.tables[-1]["rows"][-1].append("".join(self._cell).strip())
             self._cell = None
         elif tag == "caption" and self._caption is not None:

@@ -5,7 +5,8 @@ returns the section's HTML fragment from a :class:`ReportContext` (records, tabl
 checks, recipe, fitted model). In order: the title block (what was analysed, when, by whom,
 with which modalnb and which records), the caution, the modal table, the damping
 cross-checks, the poles set aside, the mode shapes (one small table per mode), the hit
-decisions, the figures, then any ``extra_sections`` and, last, the recipe pretty-printed.
+decisions, the figures, the FRFs with coherence (records with force), the moving shape view,
+then any ``extra_sections`` and, last, the recipe pretty-printed.
 
 Wiring in another section takes one line, either as an entry of :data:`SECTIONS`::
 
@@ -88,6 +89,7 @@ class ReportContext:
     recipe: Recipe | None
     heading: str
     analysed_at: str
+    geometry: Any = None  # a modalnb.geometry.Geometry for the moving shape view
 
     def var(self, name: str, k: int) -> Any:
         """Per-mode value `name` of mode position `k` (None when the table lacks it)."""
@@ -329,6 +331,31 @@ def _recipe(ctx: ReportContext) -> str:
     return "".join(parts)
 
 
+def _frf_section(ctx: ReportContext) -> str:
+    """Measured against model FRFs and coherence (:mod:`.frf_report`); empty without force."""
+    if "force" not in ctx.records:
+        return ""
+    from .frf_report import frf_section_html
+
+    return frf_section_html(ctx.records, ctx.result)
+
+
+def _shape_view_section(ctx: ReportContext) -> str:
+    """The moving shape view on the structure's geometry (:mod:`.shape_view`)."""
+    import warnings
+
+    from .._errors import ModalnbWarning
+    from .shape_view import shape_section_html
+
+    with warnings.catch_warnings():
+        # nodes without a position are placed on a line; the view names them itself
+        warnings.simplefilter("ignore", ModalnbWarning)
+        try:
+            return shape_section_html(ctx.records, ctx.result, ctx.geometry)
+        except ModalnbError as exc:
+            return f"<p class=note>No moving shape view: {_e(' '.join(str(exc).split()))}</p>"
+
+
 #: The report's sections, in page order: (id, title, fn(ctx) -> HTML fragment).
 SECTIONS: list[tuple[str, str, Callable[[ReportContext], str]]] = [
     ("analysis", "What was analysed", _title_block),
@@ -339,6 +366,8 @@ SECTIONS: list[tuple[str, str, Callable[[ReportContext], str]]] = [
     ("shapes", "Mode shapes", _shapes),
     ("hits", "Hit decisions", _hits),
     ("figures", "Figures", _figures_section),
+    ("frf", "", lambda ctx: _frf_section(ctx)),
+    ("shape-view", "", lambda ctx: _shape_view_section(ctx)),
 ]
 
 #: The last section, after any extra ones.
@@ -547,6 +576,7 @@ def report_html(
     title: str | None = None,
     extra_sections: Sequence[ExtraSection] | None = None,
     analysed_at: _dt.datetime | str | None = None,
+    geometry: Any = None,
 ) -> str:
     """The report as one HTML page (plotly.js embedded once; works offline).
 
@@ -571,6 +601,9 @@ def report_html(
         callables ``fn(records, result)`` giving a fragment or a ``(title, fragment)``.
     analysed_at : datetime or str, optional
         The analysis date shown (ISO 8601); default now, in UTC, to the second.
+    geometry : modalnb.geometry.Geometry, optional
+        Node positions and lines for the moving shape view (default: the records' channel
+        positions; nodes without one are placed on a line).
 
     Returns
     -------
@@ -600,7 +633,7 @@ def report_html(
     if analysed_at is None:
         analysed_at = _dt.datetime.now(_dt.UTC).replace(microsecond=0)
     when = analysed_at.isoformat() if isinstance(analysed_at, _dt.datetime) else str(analysed_at)
-    ctx = ReportContext(records, result, checks, model, rec, heading, when)
+    ctx = ReportContext(records, result, checks, model, rec, heading, when, geometry)
     sections = [(sid, stitle, fn(ctx)) for sid, stitle, fn in SECTIONS]
     for i, item in enumerate(extra_sections or ()):
         stitle, frag = _extra(item, records, result)

@@ -98,6 +98,7 @@ class TablePanel(Panel):
         _mac_heatmap(self.mac_fig)
         self.hitmac_fig = figure(330, title="MAC between hits (per-hit residues)")
         _mac_heatmap(self.hitmac_fig)
+        self.geometry = geometry
         self.motion = ShapeMotion(geometry)
         self.shape_fig = self.motion.fig
         self.out_dir = w.Text(value=str(out_dir), description="folder", layout=w.Layout(width="60%"))
@@ -142,7 +143,8 @@ class TablePanel(Panel):
         """Write the table files and/or the report into the folder box; return the paths."""
         self.export_status.value = "⏳ writing…"
         try:
-            files = self.analysis.export(self.out_dir.value, table=table, report=report)
+            files = self.analysis.export(self.out_dir.value, table=table, report=report,
+                                         geometry=self.geometry)
         except (ValueError, OSError) as exc:
             self._failed(exc)
             return {}
