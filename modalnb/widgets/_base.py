@@ -176,7 +176,32 @@ def fig_box(fig: go.FigureWidget, css: str) -> w.Box:
     box = w.Box([fig], layout=w.Layout(width="100%", min_width="0"))
     box.add_class(css)
     box.add_class("modalnb-figure")
+    _fit_width_once_drawn(fig)
     return box
+
+
+#: Re-measures asked of a figure after its first draws (see :func:`_fit_width_once_drawn`).
+_WIDTH_NUDGES = 4
+
+
+def _fit_width_once_drawn(fig: go.FigureWidget) -> None:
+    """Ask the browser to size the figure to its box once it is drawn.
+
+    plotly.js sizes a figure without a set width to its element when it first draws it,
+    but the notebook draws a new widget before its box has its width (it then falls back to
+    700 px) and sends no resize afterwards. A drawn figure tells the kernel its traces
+    (``_js2py_traceDeltas``, after its first draw and after each restyle); the first such
+    messages get a relayout ``autosize: true`` back, which makes plotly.js measure the
+    element again, now in place (a relayout sends no trace message: no loop).
+    """
+    left = [_WIDTH_NUDGES]
+
+    def on_drawn(change: dict[str, Any]) -> None:
+        if left[0] > 0 and change.get("new"):
+            left[0] -= 1
+            fig._send_relayout_msg({"autosize": True})
+
+    fig.observe(on_drawn, "_js2py_traceDeltas")
 
 
 def side_by_side(*boxes: w.Widget) -> w.HBox:

@@ -40,7 +40,7 @@ COLUMNS = (
     ("clipped_samples", "clipped", "samples at the converter's limit"),
 )
 #: Column widths of the grid (the text columns share what is left; cells wrap, never cut).
-GRID_COLUMNS = ("36px 40px 196px minmax(110px, 2fr) minmax(110px, 2fr) "
+GRID_COLUMNS = ("36px 40px 236px minmax(110px, 2fr) minmax(110px, 2fr) "
                 "repeat(6, minmax(54px, 1fr))")
 
 
@@ -76,7 +76,7 @@ class HitPanel(Panel):
                 if key == "user_decision":
                     tb = w.ToggleButtons(options=[c[0] for c in self._CHOICES], value="auto",
                                          tooltips=list(self._TIPS),
-                                         style={"button_width": "60px"},
+                                         style={"button_width": "74px"},
                                          layout=w.Layout(width="auto"))
                     tb.add_class(f"modalnb-hit-toggle-{h}")
                     tb.add_class("modalnb-hit-toggle")
@@ -95,7 +95,7 @@ class HitPanel(Panel):
         self.show_hit = w.Dropdown(options=a.hits, value=a.hits[0], description="show hit",
                                    tooltip="the hit drawn below",
                                    style={"description_width": "initial"},
-                                   layout=w.Layout(width="auto"))
+                                   layout=w.Layout(width="160px"))
         self.show_hit.add_class("modalnb-hit-choice")
         self.show_hit.observe(lambda ch: self._draw_hit(), "value")
         self.force_fig = go.FigureWidget(make_subplots(

@@ -111,7 +111,7 @@ class TablePanel(Panel):
         self.mode = w.Dropdown(options=[1], value=1, description="mode",
                                tooltip="the mode of the hits' MAC and the shape plot",
                                style={"description_width": "initial"},
-                               layout=w.Layout(width="auto"))
+                               layout=w.Layout(width="160px"))
         self.mode.add_class("modalnb-table-mode")
         self.mode.observe(lambda ch: self._draw_mode(), "value")
         self.mac_fig = figure(380, title="MAC between modes")
