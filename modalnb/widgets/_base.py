@@ -151,8 +151,11 @@ def fmt(x: Any) -> str:
     return esc(x)
 
 
-#: Legends sit below the plot (horizontal, wrapping), never over the title.
-LEGEND_BELOW = {"orientation": "h", "x": 0, "xanchor": "left", "y": -0.18, "yanchor": "top"}
+#: Legends sit at the foot of the figure (horizontal, wrapping), below the x-axis title and
+#: never over the plot title; :data:`LEGEND_MARGIN` px at the bottom leave them room.
+LEGEND_BELOW = {"orientation": "h", "x": 0, "xanchor": "left", "yref": "container", "y": 0.0,
+                "yanchor": "bottom"}
+LEGEND_MARGIN = 96
 
 
 def figure(height: int = 320, **layout: Any) -> go.FigureWidget:
@@ -160,7 +163,7 @@ def figure(height: int = 320, **layout: Any) -> go.FigureWidget:
     title at the top left, the legend below the plot, the width of its box (autosize)."""
     fig = go.FigureWidget()
     title = layout.pop("title", None)
-    fig.update_layout(height=height, margin={"l": 60, "r": 20, "t": 40, "b": 40},
+    fig.update_layout(height=height, margin={"l": 60, "r": 20, "t": 40, "b": LEGEND_MARGIN},
                       template="plotly_white", legend=LEGEND_BELOW, autosize=True,
                       colorway=list(PALETTE.series), **layout)
     if title is not None:

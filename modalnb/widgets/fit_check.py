@@ -10,7 +10,7 @@ from plotly.subplots import make_subplots
 
 from .._display import PALETTE, decimate_for_display
 from ..session import Analysis
-from ._base import LEGEND_BELOW, Panel, esc, fig_box, number, table_html
+from ._base import LEGEND_BELOW, LEGEND_MARGIN, Panel, esc, fig_box, number, table_html
 
 __all__ = ["FitPanel"]
 
@@ -43,12 +43,12 @@ class FitPanel(Panel):
         self.hit.observe(lambda ch: self.refresh(), "value")
         self.channel.observe(lambda ch: self.refresh(), "value")
         self.fig = go.FigureWidget(make_subplots(
-            rows=3, cols=1, vertical_spacing=0.13,
+            rows=3, cols=1, vertical_spacing=0.15,
             subplot_titles=("measured and model in the fit window", "residual (measured − model)",
                             "spectra: measured and residual")))
-        self.fig.update_layout(height=660, template="plotly_white", autosize=True,
-                               margin={"l": 60, "r": 20, "t": 40, "b": 40},
-                               legend={**LEGEND_BELOW, "y": -0.08})
+        self.fig.update_layout(height=700, template="plotly_white", autosize=True,
+                               margin={"l": 60, "r": 20, "t": 40, "b": LEGEND_MARGIN},
+                               legend=LEGEND_BELOW)
         for name, colour, row, legend in (("measured", PALETTE.measured, 1, True),
                                           ("model", PALETTE.model, 1, True),
                                           ("residual", PALETTE.residual, 2, True),

@@ -90,9 +90,12 @@ FIGURES = """() => {
     const legend = r('.legend'), title = r('.g-gtitle'), plot = r('.nsewdrag');
     const overlap = (a, b) => a && b && a.width > 0 && b.width > 0 && a.left < b.right &&
       b.left < a.right && a.top < b.bottom && b.top < a.bottom;
+    const axisTitles = [...box.querySelectorAll('[class^="g-x"][class$="title"] text')]
+      .map(e => e.getBoundingClientRect());
     out.push({css: box.className, width: svg.getBoundingClientRect().width,
               panel: panel.getBoundingClientRect().width, box: box.getBoundingClientRect().width,
-              titleLegend: overlap(legend, title), legendOnPlot: overlap(legend, plot)});
+              titleLegend: overlap(legend, title) || axisTitles.some(a => overlap(legend, a)),
+              legendOnPlot: overlap(legend, plot)});
   }
   return out;
 }"""
@@ -208,7 +211,7 @@ def test_no_label_cut_off_titles_apart_plots_full_width(nb, shoot):
         problems += [f"{tab}: text cut off: {c}" for c in nb.page.evaluate(CUT_OFF)]
         for f in nb.page.evaluate(FIGURES):
             if f["titleLegend"]:
-                problems.append(f"{tab}: legend over the title in {f['css']}")
+                problems.append(f"{tab}: legend over a title in {f['css']}")
             if f["legendOnPlot"]:
                 problems.append(f"{tab}: legend over the plot in {f['css']}")
             # a figure fills its box, and a box alone in its row takes the panel's width
