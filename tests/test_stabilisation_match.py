@@ -58,3 +58,23 @@ def test_match_flag_agrees_with_stable_columns(st):
     m = st["match"].values
     np.testing.assert_array_equal(np.isin(m, [flag["stable"], flag["shape"]]), st["stable"].values)
     np.testing.assert_array_equal(m == flag["stable"], st["stable_shape"].values)
+
+
+def test_band_by_band_rows_carry_the_flag_through():
+    # a long record is fitted band by band (estimate/_bands.py): its rows, mapped back to
+    # absolute frequency, keep each band pencil's flag, consistent with their `stable`
+    from modalnb.estimate._bands import fit_poles_banded
+    from modalnb.estimate._pencil import MATCH_SHAPE, MATCH_STABLE
+    from modalnb.testing.synth import free_decay
+
+    fs = 20000.0
+    t = np.arange(2**16) / fs
+    rng = np.random.default_rng(0)
+    x = free_decay(t, [1500.0, 1501.5], [1e-4, 1.2e-4], [1.0, 0.6])
+    y = (x + 1e-3 * rng.standard_normal(t.size))[None, :] / 1e-3
+    rows = fit_poles_banded(y, t, fs, (1000.0, 2000.0)).pencil.rows
+    assert rows and all(len(r) == 9 for r in rows)
+    match = np.array([r[8] for r in rows])
+    stable = np.array([r[5] for r in rows], bool)
+    np.testing.assert_array_equal(np.isin(match, [MATCH_SHAPE, MATCH_STABLE]), stable)
+    assert stable.any() and not stable.all()

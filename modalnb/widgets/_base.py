@@ -218,13 +218,16 @@ _TABLE_STYLE = (
     "<style>.modalnb-table{border-collapse:collapse;font-size:12px}"
     f".modalnb-table td,.modalnb-table th{{border:1px solid {PALETTE.grid};padding:2px 6px;"
     "text-align:right}"
-    f".modalnb-table th{{background:{PALETTE.header}}}</style>"
+    f".modalnb-table th{{background:{PALETTE.header}}}"
+    ".modalnb-table td.modalnb-text{text-align:left}</style>"
 )
 
 
 def table_html(rows: list[dict[str, Any]], columns: list[tuple[str, str]], css: str,
-               cell_class: str | None = None) -> str:
+               cell_class: str | None = None, text: tuple[str, ...] = ()) -> str:
     """An HTML table; every cell escaped; each cell gets class ``<cell_class>-<row>-<key>`` when asked.
+
+    Numbers are right-aligned; the columns named in `text` (words) are left-aligned.
 
     Examples
     --------
@@ -237,6 +240,8 @@ def table_html(rows: list[dict[str, Any]], columns: list[tuple[str, str]], css: 
         cells = []
         for key, _ in columns:
             cls = f' class="{esc(cell_class)}-{i + 1}-{esc(key)}"' if cell_class else ""
+            if key in text:
+                cls = cls[:-1] + ' modalnb-text"' if cls else ' class="modalnb-text"'
             cells.append(f"<td{cls}>{fmt(r.get(key, ''))}</td>")
         body.append("<tr>" + "".join(cells) + "</tr>")
     return (f'{_TABLE_STYLE}<table class="modalnb-table {esc(css)}"><thead><tr>{head}</tr></thead>'

@@ -229,7 +229,7 @@ class ModesPanel(Panel):
             "the wide-band one. Each pole is compared with the nearest pole of the order below "
             "(1 % and 5 % are common practice); a class names the first test it fails.</i>"
             + table_html(rows, [("cls", "class"), ("meaning", "meaning"), ("count", "poles")],
-                         "modalnb-stab-classes", "modalnb-stab"))
+                         "modalnb-stab-classes", "modalnb-stab", text=("cls", "meaning")))
 
 
 def _label(meaning: str) -> str:
