@@ -14,7 +14,7 @@ from typing import Any
 # plotly 6, but plotly does not declare the dependency: without anywidget the figures
 # cannot exist. Import it here, so a missing anywidget is one clear error at import time.
 try:
-    import anywidget  # noqa: F401
+    import anywidget
 except ImportError as exc:  # pragma: no cover - depends on the environment
     raise ImportError(
         "modalnb.widgets needs the `anywidget` package: plotly's FigureWidget, which draws "
@@ -183,6 +183,34 @@ def fig_box(fig: go.FigureWidget, css: str) -> w.Box:
     return box
 
 
+class _Sizer(anywidget.AnyWidget):
+    """An invisible widget that keeps a panel's figures as wide as their boxes.
+
+    Every plotly figure of the page resizes itself to its element on a window ``resize``
+    event (plotly's FigureWidget listens to it), but the notebook sends none when a panel
+    is laid out, when a tab is shown or when the notebook area changes width. This widget
+    watches its panel with a ``ResizeObserver`` and sends one (debounced) ``resize`` event
+    after its size changes.
+    """
+
+    _esm = """
+    function render({ el }) {
+      let timer = null;
+      const kick = () => { clearTimeout(timer);
+        timer = setTimeout(() => window.dispatchEvent(new Event('resize')), 120); };
+      const seen = new ResizeObserver(kick);
+      let tries = 0;
+      const watch = () => {
+        const panel = el.closest('.modalnb-panel');
+        if (panel) { seen.observe(panel); } else if (tries++ < 100) { setTimeout(watch, 100); }
+      };
+      watch();
+      return () => { clearTimeout(timer); seen.disconnect(); };
+    }
+    export default { render };
+    """
+
+
 #: Re-measures asked of a figure after its first draws (see :func:`_fit_width_once_drawn`).
 _WIDTH_NUDGES = 4
 
@@ -309,7 +337,7 @@ class Panel:
         return cls(analysis)
 
     def _finish(self, children: list[w.Widget]) -> None:
-        self.widget = w.VBox([w.HTML(PANEL_STYLE), *children, self.status],
+        self.widget = w.VBox([w.HTML(PANEL_STYLE), _Sizer(), *children, self.status],
                              layout=w.Layout(width="100%"))
         self.widget.add_class("modalnb-panel")
         self.widget.add_class(self.css)
