@@ -14,7 +14,8 @@ import numpy as np
 
 from ._errors import ModalnbError
 
-__all__ = ["Palette", "PALETTE", "MAX_POINTS", "decimate_for_display", "envelope_db", "to_db"]
+__all__ = ["Palette", "PALETTE", "MAX_POINTS", "decimate_for_display", "envelope_db", "to_db",
+           "mode_line"]
 
 
 @dataclass(frozen=True)
@@ -34,7 +35,12 @@ class Palette:
     accepted: str = "#2f74b5"  #: blue: hits used in the fit
     rejected: str = "#9aa3ab"  #: grey: hits left out
     stable: str = "#2f8f4e"  #: green: pole stable across model orders
-    once: str = "#cfd4d8"  #: light grey: pole seen at one order only
+    once: str = "#cfd4d8"  #: light grey: pole new at its order (nothing to compare with)
+    #: stabilisation chart, poles not stable, by the first test they fail between orders
+    unstable_frequency: str = "#a7b0b8"  #: grey: no pole of the order below within 1 % in frequency
+    unstable_damping: str = "#d9a441"  #: ochre: frequency agrees, damping does not
+    unstable_energy: str = "#8fb8de"  #: pale blue: frequency and damping agree, energy under the limit
+    unstable_shape: str = "#7fbf8f"  #: pale green: all but the shape (MAC) agree
     window: str = "rgba(80, 140, 220, 0.18)"  #: pale blue band: fit window / band
     error: str = "#b3261e"  #: one-line errors, the safety caution's rule
     caution: str = "#fbf1f0"  #: background of the safety caution
@@ -64,6 +70,19 @@ class Palette:
 
 #: The palette every figure and page of modalnb uses.
 PALETTE = Palette()
+
+
+
+def mode_line() -> dict[str, object]:
+    """The one style of a fitted mode's vertical line, in the widgets and the report.
+
+    Examples
+    --------
+    >>> mode_line()["color"] == PALETTE.mode, mode_line()["dash"]
+    (True, 'dot')
+    """
+    return {"color": PALETTE.mode, "width": 1, "dash": "dot"}
+
 
 #: Most points sent per trace (what a screen a few thousand pixels wide can show).
 MAX_POINTS = 2000

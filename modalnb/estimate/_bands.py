@@ -382,7 +382,7 @@ def fit_poles_banded(
                 lam = complex(-row[4] * row[3] * TWO_PI, row[2] * TWO_PI)
                 lam += 1j * TWO_PI * b.shift_hz
                 fn, zz = abs(lam) / TWO_PI, -lam.real / abs(lam)
-                pencil.rows.append((ib + 1, row[1], lam.imag / TWO_PI, fn, zz, row[5], row[6], row[7]))
+                pencil.rows.append((ib + 1, row[1], lam.imag / TWO_PI, fn, zz, *row[5:]))
             # every pole of the band and its margins starts the fit (a pole in a margin
             # that is left out would bias its neighbours); only the core's are kept
             cands = [c for c in out.candidates if -c.lam.real < heavy

@@ -30,7 +30,15 @@ from ._bands import fit_banded, scatter_banded, use_bands
 from ._basis import is_near_critical, pole_of, residues_from_coefficients
 from ._convert import modal_conversions
 from ._core import ASKED_TOL, CoreResult, compress, fit_core
-from ._pencil import STABLE_MAC
+from ._pencil import (
+    MATCH_DAMPING,
+    MATCH_ENERGY,
+    MATCH_FREQUENCY,
+    MATCH_NEW,
+    MATCH_SHAPE,
+    MATCH_STABLE,
+    STABLE_MAC,
+)
 from ._select import WEAK_FACTOR, _select_modes, fit_quality
 from ._significance import significance_threshold
 from ._varpro import Problem, natural_with_cov, one_step
@@ -225,7 +233,8 @@ def _force_spectrum(records: xr.Dataset, prep: _Prepared, lam: complex) -> np.nd
 
 def _stabilisation(core: CoreResult) -> xr.Dataset:
     rows = core.pencil.rows if core.pencil is not None else []
-    arr = np.array(rows, dtype=float).reshape(-1, 8)
+    arr = np.array(rows, dtype=float).reshape(-1, 9)
+    codes = (MATCH_NEW, MATCH_FREQUENCY, MATCH_DAMPING, MATCH_ENERGY, MATCH_SHAPE, MATCH_STABLE)
     return xr.Dataset(
         {
             "pencil_pass": ("pole", arr[:, 0].astype(int)),
@@ -242,6 +251,12 @@ def _stabilisation(core: CoreResult) -> xr.Dataset:
                                         "NaN without a pole within 1 % in frequency)"}),
             "stable_shape": ("pole", arr[:, 5].astype(bool) & (arr[:, 7] >= STABLE_MAC), {
                 "long_name": "stable in frequency, damping, energy and shape (MAC >= 0.9)"}),
+            "match": ("pole", arr[:, 8].astype(np.int8), {
+                "long_name": "why the pole is or is not stable: the first test it fails "
+                             "against the previous order of its pencil",
+                # CF conventions' flag attributes (flag_values / flag_meanings)
+                "flag_values": np.array(codes, np.int8),
+                "flag_meanings": "new frequency damping energy shape stable"}),
         },
         attrs={"description": "poles versus pencil order; pass 0 is the wide-band pass, "
                "passes 1.. the sub-bands; stable = a pole of the previous order within 1 % in "

@@ -46,8 +46,9 @@ class PencilOutput:
     # rows of (pass id, order, frequency_hz (damped), natural_hz, damping_ratio, stable,
     # significance = pole energy over the residual variance of that order's fit; NaN in an
     # order without a stable pole, where it is not needed; mac = MAC of the pole's shape
-    # with that of the matched pole of the previous order, NaN without a match)
-    rows: list[tuple[int, int, float, float, float, bool, float, float]] = field(
+    # with that of the matched pole of the previous order, NaN without a match; match =
+    # why the pole is or is not stable, one of the MATCH_* codes)
+    rows: list[tuple[int, int, float, float, float, bool, float, float, int]] = field(
         default_factory=list)
 
 
@@ -115,6 +116,25 @@ def _shift_poles_shapes(u: np.ndarray, first: np.ndarray) -> tuple[np.ndarray, n
 #: Shapes of a pole at successive orders agree when their MAC is at least 0.9 (common
 #: practice for stabilisation charts; MAC of Allemang & Brown 1982).
 STABLE_MAC = 0.9
+
+#: Why a pole of the stabilisation chart is or is not stable: the first test it fails
+#: against the previous order of its pencil, in the order the tests are made.
+#: MATCH_NEW: the first order of its pencil (or an order below without poles): nothing to
+#: compare with.
+MATCH_NEW = 0
+#: MATCH_FREQUENCY: no pole of the order below within 1 % in natural frequency.
+MATCH_FREQUENCY = 1
+#: MATCH_DAMPING: the nearest pole of the order below is within 1 % in frequency but not
+#: within 5 % in damping ratio.
+MATCH_DAMPING = 2
+#: MATCH_ENERGY: frequency and damping agree, but the pole's energy is under the
+#: candidate significance limit (a noise pole of an over-specified order).
+MATCH_ENERGY = 3
+#: MATCH_SHAPE: stable in frequency, damping and energy, but its shape MAC with the
+#: matched pole is under :data:`STABLE_MAC` (or not defined).
+MATCH_SHAPE = 4
+#: MATCH_STABLE: stable in frequency, damping, energy and shape.
+MATCH_STABLE = 5
 
 
 def _mac(a: np.ndarray, b: np.ndarray) -> float:
@@ -209,6 +229,7 @@ def _sweep(
         # its shape MAC with that pole is kept beside (the chart's shape criterion)
         stable = np.zeros(lam.size, bool)
         mac = np.full(lam.size, np.nan)
+        match = np.full(lam.size, MATCH_NEW)
         if prev is not None and prev.size and lam.size:
             pfn, pz = _natural(prev)
             j = np.argmin(np.abs(pfn[None, :] - fn[:, None]), axis=1)
@@ -216,6 +237,8 @@ def _sweep(
             stable = close & (np.abs(pz[j] - zeta) <= 0.05 * np.maximum(zeta, 1e-4))
             for i in np.nonzero(close)[0]:
                 mac[i] = _mac(shape[i], prev_shape[j[i]])
+            # provisional: energy and shape are judged once the limit is known (find_poles)
+            match = np.where(stable, MATCH_STABLE, np.where(close, MATCH_DAMPING, MATCH_FREQUENCY))
         # pole energies only where the chart needs them (an order with a stable pole)
         signif = np.full(lam.size, np.nan)
         last = None
@@ -223,9 +246,10 @@ def _sweep(
             e_m, v_m = _energies(sig, np.exp((lam - 1j * TWO_PI * shift_hz) * dt))
             signif = e_m / max(v_m, 1e-300)
             last = (e_m, v_m)
-        for lk, f, zz, st, sg, mc in zip(lam, fn, zeta, stable, signif, mac, strict=True):
+        for lk, f, zz, st, sg, mc, mt in zip(lam, fn, zeta, stable, signif, mac, match,
+                                             strict=True):
             out.rows.append((pass_id, m, float(lk.imag / TWO_PI), float(f), float(zz), bool(st),
-                             float(sg), float(mc)))
+                             float(sg), float(mc), int(mt)))
         per_order.append(lam)
         prev = lam
         prev_shape = shape
@@ -358,8 +382,18 @@ def find_poles(
     out.candidates = [c for c in out.candidates if c.significance >= min_significance]
     # the chart calls a pole stable only when it also carries energy above the same limit
     # (noise poles of an over-specified order can be stable in frequency and damping)
-    out.rows = [(*r[:5], bool(r[5] and r[6] >= min_significance), *r[6:]) for r in out.rows]
+    out.rows = [(*r[:5], bool(r[5] and r[6] >= min_significance), *r[6:8],
+                 _final_match(r, min_significance)) for r in out.rows]
     return out
+
+
+def _final_match(row: tuple, min_significance: float) -> int:
+    """A row's MATCH_* code once energy (against `min_significance`) and shape are judged."""
+    if row[8] != MATCH_STABLE:  # failed frequency or damping, or nothing to compare
+        return int(row[8])
+    if not row[6] >= min_significance:
+        return MATCH_ENERGY
+    return MATCH_STABLE if row[7] >= STABLE_MAC else MATCH_SHAPE
 
 
 #: The source label of the wide-band pass's candidates.

@@ -10,7 +10,7 @@ from plotly.subplots import make_subplots
 
 from .._display import PALETTE, decimate_for_display
 from ..session import Analysis
-from ._base import Panel, esc, fig_box, table_html
+from ._base import LEGEND_BELOW, LEGEND_MARGIN, Panel, esc, fig_box, number, table_html
 from .frf_views import FrfCheckView
 
 __all__ = ["FitPanel"]
@@ -21,9 +21,9 @@ SPECTRUM_FLOOR = 1e-6
 
 _CROSS = ("log_dec", "half_power", "envelope", "hilbert")
 _CROSS_LABELS = {"log_decrement": "δ (from the fit)",
-                 "xcheck_log_decrement_damping": "ζ, log decrement",
-                 "xcheck_half_power_damping": "ζ, half-power",
-                 "xcheck_hilbert_damping": "ζ, Hilbert envelope"}
+                 "xcheck_log_decrement_damping": "ζ [%], log decrement",
+                 "xcheck_half_power_damping": "ζ [%], half-power",
+                 "xcheck_hilbert_damping": "ζ [%], Hilbert envelope"}
 
 
 class FitPanel(Panel):
@@ -36,17 +36,20 @@ class FitPanel(Panel):
     def __init__(self, analysis: Analysis) -> None:
         super().__init__(analysis)
         a = analysis
-        self.hit = w.Dropdown(options=a.hits, value=(a.accepted_hits() or a.hits)[0], description="hit")
-        self.channel = w.Dropdown(options=a.channels, value=a.channels[-1], description="channel")
+        narrow = {"style": {"description_width": "initial"}, "layout": w.Layout(width="auto")}
+        self.hit = w.Dropdown(options=a.hits, value=(a.accepted_hits() or a.hits)[0],
+                              description="hit", **narrow)
+        self.channel = w.Dropdown(options=a.channels, value=a.channels[-1], description="channel",
+                                  **narrow)
         self.hit.observe(lambda ch: self.refresh(), "value")
         self.channel.observe(lambda ch: self.refresh(), "value")
         self.fig = go.FigureWidget(make_subplots(
-            rows=3, cols=1, vertical_spacing=0.13,
+            rows=3, cols=1, vertical_spacing=0.15,
             subplot_titles=("measured and model in the fit window", "residual (measured − model)",
                             "spectra: measured and residual")))
-        self.fig.update_layout(height=620, template="plotly_white",
-                               margin={"l": 60, "r": 20, "t": 40, "b": 40},
-                               legend={"orientation": "h", "y": 1.07})
+        self.fig.update_layout(height=700, template="plotly_white", autosize=True,
+                               margin={"l": 60, "r": 20, "t": 40, "b": LEGEND_MARGIN},
+                               legend=LEGEND_BELOW)
         for name, colour, row, legend in (("measured", PALETTE.measured, 1, True),
                                           ("model", PALETTE.model, 1, True),
                                           ("residual", PALETTE.residual, 2, True),
@@ -87,9 +90,14 @@ class FitPanel(Panel):
             for i, sp in enumerate(spectra):
                 fx, fy = decimate_for_display(fr, sp)
                 self.fig.data[3 + i].x, self.fig.data[3 + i].y = fx, np.maximum(fy, floor)
+        units = a.records["response"].attrs.get("units", "")
+        quality = [{"channel": q["channel"], "r_squared": number(q["r_squared"], "ratio", step=1e-4),
+                    "residual_rms": number(q["residual_rms"], "amplitude")}
+                   for q in a.channel_quality(h)]
+        rms_head = f"residual RMS [{units}]" if units else "residual RMS"
         self.quality.value = f"<b>fit quality, hit {h}</b>" + table_html(
-            a.channel_quality(h), [("channel", "channel"), ("r_squared", "R²"),
-                                   ("residual_rms", "residual RMS")], "modalnb-quality-table")
+            quality, [("channel", "channel"), ("r_squared", "R²"), ("residual_rms", rms_head)],
+            "modalnb-quality-table", "modalnb-quality")
         self._show_cross_checks()
 
     def _show_cross_checks(self) -> None:
@@ -99,13 +107,17 @@ class FitPanel(Panel):
         if not names:
             self.cross.value = "<i>The estimation engine reported no cross-checks.</i>"
             return
-        rows = [{"mode": int(mm), "damping_ratio": res["damping_ratio"].values[k].item(),
-                 **{n: res[n].values[k].item() for n in names}}
+        def cell(n: str, k: int) -> str:  # damping ratios in %, the log decrement as it is
+            v = res[n].values[k].item()
+            return number(v, "ratio") if n == "log_decrement" else number(v, "damping_pct", unit="%")
+
+        rows = [{"mode": int(mm), "damping_ratio": cell("damping_ratio", k),
+                 **{n: cell(n, k) for n in names}}
                 for k, mm in enumerate(res["mode"].values)]
         bias = {n: str(res[n].attrs.get("bias", "")) for n in names}
         label = {n: _CROSS_LABELS.get(n, n.replace("_", " ")) for n in names}
         self.cross.value = "<b>cross-checks (each with its known bias)</b>" + table_html(
-            rows, [("mode", "mode"), ("damping_ratio", "fitted ζ")] + [(n, label[n]) for n in names],
-            "modalnb-cross-table") + "".join(
+            rows, [("mode", "mode"), ("damping_ratio", "fitted ζ [%]")] + [(n, label[n]) for n in names],
+            "modalnb-cross-table", "modalnb-cross") + "".join(
             f"<div class='modalnb-cross-bias'><i>{esc(label[n])}</i>: {esc(bias[n])}</div>"
             for n in names if bias[n])

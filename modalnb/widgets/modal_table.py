@@ -9,35 +9,50 @@ from pathlib import Path
 from typing import Any
 
 import ipywidgets as w
-import numpy as np
 
 from .._display import PALETTE
+from .._numbers import format_quantity
 from ..export._aside import ASIDE_TITLE, aside_rows
 from ..geometry import Geometry
 from ..session import Analysis
-from ._base import Panel, esc, fig_box, figure, mode_rows, table_html
+from ._base import Panel, esc, fig_box, figure, mode_cells, number, side_by_side, table_html, with_u
 from .frf_views import ModelPairingView
 from .shape_motion import ShapeMotion
 
 __all__ = ["TablePanel"]
 
 def _phase_text(deg: float) -> str:
-    """Phase in whole degrees within (-180, 180]: -179.7 shows as +180, -0.2 as +0.
+    """Phase to 0.1° (modalnb._numbers) within (-180, 180]: -179.97 shows as +180.0°.
 
     Examples
     --------
-    >>> _phase_text(-179.7), _phase_text(-0.2), _phase_text(90.4)
-    ('+180°', '+0°', '+90°')
+    >>> _phase_text(-179.97), _phase_text(-0.02), _phase_text(90.44)
+    ('+180.0°', '+0.0°', '+90.4°')
     """
-    r = int(round(float(deg)))
+    r = round(float(deg), 1)
     if r <= -180:
         r += 360
-    return f"{r:+d}°"
+    text = format_quantity(r, "phase_deg")
+    return text if text.startswith("-") else f"+{text}"
 
 
 def _mac_heatmap(fig: Any) -> None:
+    """A MAC heat map with square cells (y scaled to x), the first row at the top."""
     fig.add_heatmap(z=[[0]], zmin=0, zmax=1, colorscale=[list(s) for s in PALETTE.mac_scale],
-                    colorbar={"title": "MAC"}, texttemplate="%{z:.2f}")
+                    colorbar={"title": "MAC", "thickness": 12}, texttemplate="%{z:.2f}",
+                    xgap=1, ygap=1)
+    fig.update_layout(xaxis={"type": "category", "constrain": "domain"},
+                      yaxis={"type": "category", "scaleanchor": "x", "scaleratio": 1,
+                             "constrain": "domain", "autorange": "reversed"},
+                      margin={"l": 60, "r": 10, "t": 40, "b": 40})
+
+
+def _mac_labels(fig: Any, z: Any, labels: list[str]) -> None:
+    """Fill a MAC heat map: one row and one column per label (a square matrix)."""
+    fig.data[0].z, fig.data[0].x, fig.data[0].y = z, labels, labels
+    fig.layout.xaxis.categoryorder = fig.layout.yaxis.categoryorder = "array"
+    fig.layout.xaxis.categoryarray = fig.layout.yaxis.categoryarray = labels
+    fig.layout.xaxis.tickvals = fig.layout.yaxis.tickvals = labels
 
 
 def _aside_html(result: Any) -> str:
@@ -51,22 +66,23 @@ def _aside_html(result: Any) -> str:
     ...                  "aside_damping_ratio": ("aside_pole", [0.0123]),
     ...                  "aside_energy": ("aside_pole", [233.7]),
     ...                  "aside_reason": ("aside_pole", ["too weak"])})
-    >>> "812.512" in _aside_html(ds), "3.1" in _aside_html(ds), _aside_html(xr.Dataset())
+    >>> "812.5 ± 3.1" in _aside_html(ds), "1.23" in _aside_html(ds), _aside_html(xr.Dataset())
     (True, True, '')
     """
     rows = aside_rows(result)
     if not rows:
         return ""
 
-    def num(v: Any, spec: str, scale: float = 1.0) -> str:
-        return "–" if not isinstance(v, (int, float)) or np.isnan(v) else format(v * scale, spec)
+    def num(v: Any) -> Any:
+        return v if isinstance(v, (int, float)) else None
 
-    shown = [{"pole": r["pole"], "f": num(r["frequency_hz"], ".6g"),
-              "fstd": num(r["frequency_hz_std"], ".2g"), "z": num(r["damping_ratio"], ".3g", 100),
-              "e": num(r["energy"], ".3g"), "reason": r["reason"]} for r in rows]
+    shown = [{"pole": r["pole"], "f": with_u(num(r["frequency_hz"]), num(r["frequency_hz_std"]),
+                                            unit="Hz"),
+              "z": number(num(r["damping_ratio"]), "damping_pct", unit="%"),
+              "e": number(num(r["energy"]), "ratio"), "reason": r["reason"]} for r in rows]
     return (f"<b>{esc(ASIDE_TITLE)}</b>: residual terms kept in the model (the modes' numbers "
             "do not depend on leaving them out of the table)" + table_html(shown, [
-                ("pole", "pole"), ("f", "frequency [Hz]"), ("fstd", "± std [Hz]"),
+                ("pole", "pole"), ("f", "frequency ± u [Hz]"),
                 ("z", "damping [%]"), ("e", "energy / noise"), ("reason", "reason")],
                 "modalnb-aside-rows", "modalnb-aside"))
 
@@ -92,22 +108,34 @@ class TablePanel(Panel):
         self.aside.add_class("modalnb-aside-table")
         self.shapes = w.HTML()
         self.shapes.add_class("modalnb-shapes-table")
-        self.mode = w.Dropdown(options=[1], value=1, description="mode")
+        self.mode = w.Dropdown(options=[1], value=1, description="mode",
+                               tooltip="the mode of the hits' MAC and the shape plot",
+                               style={"description_width": "initial"},
+                               layout=w.Layout(width="160px"))
+        self.mode.add_class("modalnb-table-mode")
         self.mode.observe(lambda ch: self._draw_mode(), "value")
-        self.mac_fig = figure(330, title="MAC between modes")
+        self.mac_fig = figure(380, title="MAC between modes")
         _mac_heatmap(self.mac_fig)
-        self.hitmac_fig = figure(330, title="MAC between hits (per-hit residues)")
+        self.hitmac_fig = figure(380, title="MAC between hits")
         _mac_heatmap(self.hitmac_fig)
         self.geometry = geometry
         self.motion = ShapeMotion(geometry)
         self.shape_fig = self.motion.fig
-        self.out_dir = w.Text(value=str(out_dir), description="folder", layout=w.Layout(width="60%"))
+        self.out_dir = w.Text(value=str(out_dir), description="folder",
+                              tooltip="the export folder (replaced as a whole)",
+                              style={"description_width": "initial"},
+                              layout=w.Layout(width="60%"))
         self.out_dir.add_class("modalnb-export-dir")
-        self.b_table = w.Button(description="table: CSV, netCDF, JSON", layout=w.Layout(width="220px"))
+        auto = w.Layout(width="auto")
+        self.b_table = w.Button(description="export table", layout=auto,
+                                tooltip="write the modal table as CSV, netCDF and JSON, with the "
+                                "recipe, into the folder")
         self.b_table.add_class("modalnb-export-table")
-        self.b_report = w.Button(description="HTML report")
+        self.b_report = w.Button(description="HTML report", layout=auto,
+                                 tooltip="write the offline HTML report into the folder")
         self.b_report.add_class("modalnb-export-report")
-        self.b_recipe = w.Button(description="save recipe")
+        self.b_recipe = w.Button(description="save recipe", layout=auto,
+                                 tooltip="save every choice made here as the recipe (JSON)")
         self.b_recipe.add_class("modalnb-save-recipe")
         self.export_status = w.HTML()
         self.export_status.add_class("modalnb-export-status")
@@ -119,10 +147,10 @@ class TablePanel(Panel):
         self._finish([
             w.HTML("<b>Modal table.</b> Frequencies and damping ratios with their standard "
                    "uncertainties; shapes normalised to 1 on the largest channel."),
-            self.modes, self.aside, self.shapes,
-            w.HBox([fig_box(self.mac_fig, "modalnb-mac-figure")]),
-            self.mode, w.HBox([fig_box(self.hitmac_fig, "modalnb-hitmac-figure"),
-                               self.motion.widget]),
+            self.modes, self.aside, self.shapes, self.mode,
+            side_by_side(fig_box(self.mac_fig, "modalnb-mac-figure"),
+                         fig_box(self.hitmac_fig, "modalnb-hitmac-figure")),
+            self.motion.widget,
             self.pairing.widget,
             w.HBox([self.out_dir]), w.HBox([self.b_table, self.b_report, self.b_recipe]),
             self.export_status,
@@ -174,10 +202,12 @@ class TablePanel(Panel):
         self.modes.value = (
             f'<div class="modalnb-table-hits">from <b class="modalnb-table-nhits">{len(used)}</b> of '
             f"{len(a.hits)} hits ({', '.join(map(str, used))})</div>"
-        ) + table_html(mode_rows(a), [
-            ("mode", "mode"), ("frequency_hz", "natural frequency [Hz]"), ("frequency_hz_std", "± std [Hz]"),
-            ("damping_ratio", "damping ratio"), ("damping_ratio_std", "± std"), ("regime", "regime"),
-            ("q_factor", "Q"), ("status", "status")], "modalnb-mode-rows", "modalnb-mode")
+        ) + table_html(mode_cells(a), [
+            ("mode", "mode"), ("frequency_hz", "natural frequency ± u [Hz]"),
+            ("damping_pct", "damping ratio ± u [%]"), ("regime", "regime"),
+            ("q_factor", "Q"), ("status", "status")], "modalnb-mode-rows", "modalnb-mode") + (
+            "<div class='modalnb-table-note'><i>u: standard uncertainty, rounded as GUM "
+            "(JCGM 100:2008) 7.2.6 says.</i></div>")
         self.aside.value = _aside_html(r)
         modes = r["mode"].values.tolist()
         amp, ph = r["shape_amplitude"].values, r["shape_phase_deg"].values
@@ -185,16 +215,14 @@ class TablePanel(Panel):
         for c, ch in enumerate(a.channels):
             row = {"channel": ch}
             for k, mm in enumerate(modes):
-                row[f"m{mm}"] = f"{amp[k, c]:.3f} ∠ {_phase_text(ph[k, c])}"
+                row[f"m{mm}"] = f"{number(amp[k, c], 'amplitude')} ∠ {_phase_text(ph[k, c])}"
             srows.append(row)
         self.shapes.value = "<b>shapes: amplitude ∠ phase</b>" + table_html(
             srows, [("channel", "channel")] + [(f"m{mm}", f"mode {mm}") for mm in modes],
             "modalnb-shape-rows", "modalnb-shape")
         labels = [f"mode {m}" for m in modes]
         with self.mac_fig.batch_update():
-            self.mac_fig.data[0].z = a.mac_modes()
-            self.mac_fig.data[0].x = labels
-            self.mac_fig.data[0].y = labels
+            _mac_labels(self.mac_fig, a.mac_modes(), labels)
         keep = self.mode.value if self.mode.value in modes else (modes[0] if modes else None)
         self.mode.unobserve_all("value")
         self.mode.options = modes or [1]
@@ -213,6 +241,6 @@ class TablePanel(Panel):
             hits, mat = a.mac_hits(m)
             lab = [f"hit {h}" for h in hits]
             with self.hitmac_fig.batch_update():
-                self.hitmac_fig.data[0].z, self.hitmac_fig.data[0].x, self.hitmac_fig.data[0].y = mat, lab, lab
-                self.hitmac_fig.layout.title = f"MAC between hits, mode {m} (per-hit residues)"
+                _mac_labels(self.hitmac_fig, mat, lab)
+                self.hitmac_fig.layout.title.text = f"MAC between hits, mode {m} (residues)"
         self.motion.show(r, m, a.records)
