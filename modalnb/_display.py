@@ -78,10 +78,10 @@ def mode_line() -> dict[str, object]:
 
     Examples
     --------
-    >>> mode_line()["color"] == PALETTE.mode, mode_line()["dash"]
-    (True, 'dot')
+    >>> mode_line() == PALETTE.mode_line, mode_line()["dash"]
+    (True, 'dash')
     """
-    return {"color": PALETTE.mode, "width": 1, "dash": "dot"}
+    return dict(PALETTE.mode_line)
 
 
 #: Most points sent per trace (what a screen a few thousand pixels wide can show).
