@@ -250,10 +250,15 @@ def format_campaign_bench(r: dict[str, Any]) -> str:
             f"{k} {v:.1f}" for k, v in r["per_set_cpu_ms"].items()))
     lines.append("scaling, sets generated inside 2 workers:")
     for n, t, m in zip(s["sizes"], s["wall_s"], s["worker_rss_mb"], strict=True):
-        lines.append(f"  {n:>5d} sets  {t:8.3g} s   worker memory {', '.join(f'{v:.0f}' for v in m)} MB")
+        lines.append(f"  {n:>5d} sets  {t:8.3g} s  ({1e3 * t / n:5.0f} ms per set)   worker memory "
+                     f"{', '.join(f'{v:.0f}' for v in m)} MB")
     if "slope_s_per_set" in s:
         lines.append(f"  least-squares line: {s['slope_s_per_set']:.3g} s per set + {s['intercept_s']:.2g} s, "
                      f"R^2 = {s['r2']:.4f}")
+    if len(s["worker_rss_mb"]) >= 2:
+        growth = max(b - a for a, b in zip(s["worker_rss_mb"][0], s["worker_rss_mb"][-1], strict=True))
+        lines.append(f"  worker memory from {s['sizes'][0]} to {s['sizes'][-1]} sets: {growth:+.0f} MB "
+                     "(largest change of one worker)")
     return "\n".join(lines)
 
 
