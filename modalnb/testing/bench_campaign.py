@@ -246,8 +246,13 @@ def format_campaign_bench(r: dict[str, Any]) -> str:
         f"peak memory per worker: {', '.join(f'{v:.0f}' for v in r['peak_rss_per_worker_mb'])} MB",
     ]
     if "per_set_cpu_ms" in r:
-        lines.append("per set, CPU time of each step (ms): " + ", ".join(
-            f"{k} {v:.1f}" for k, v in r["per_set_cpu_ms"].items()))
+        st = r["per_set_cpu_ms"]
+        lines.append("per set, CPU time of each step (ms): " + ", ".join(f"{k} {v:.1f}" for k, v in st.items()))
+        bare = st["fit_modes (bare)"]
+        lines.append(f"  overhead over fit_modes from these steps: {100 * (st['whole set (_fit_set)'] / bare - 1):+.0f} % "
+                     f"with the set's files (a worker's whole set), "
+                     f"{100 * ((st['read records'] + st['run_recipe']) / bare - 1):+.0f} % without "
+                     "(reading the records and run_recipe)")
     lines.append("scaling, sets generated inside 2 workers:")
     for n, t, m in zip(s["sizes"], s["wall_s"], s["worker_rss_mb"], strict=True):
         lines.append(f"  {n:>5d} sets  {t:8.3g} s  ({1e3 * t / n:5.0f} ms per set)   worker memory "
