@@ -409,7 +409,8 @@ def check_output_folder(folder: str | os.PathLike[str], *,
 
 @contextmanager
 def replaced_folder(
-    folder: str | os.PathLike[str], *, replaces: Collection[str] = OUTPUT_FILES
+    folder: str | os.PathLike[str], *, replaces: Collection[str] = OUTPUT_FILES,
+    sync: bool = True,
 ) -> Iterator[Path]:
     """Build a new set of files for `folder` and replace the folder with it as a whole.
 
@@ -429,6 +430,12 @@ def replaced_folder(
     replaces : collection of str
         Names the new set replaces; default :data:`OUTPUT_FILES`. Those the block does
         not write are dropped: the folder holds one run's set, never a mix of two.
+    sync : bool
+        Flush the new files to disk (``fsync``) before the exchange (default). False only
+        for a caller that can tell a set lost in a machine crash by its own checksums and
+        write it again (the test-campaign set folders): a killed process still leaves
+        the complete old or new set; a crash of the machine itself may leave files that
+        did not reach the disk.
 
     Examples
     --------
@@ -451,7 +458,8 @@ def replaced_folder(
             mode = stat.S_IMODE(folder.stat().st_mode) if folder.is_dir() else 0o777 & ~_umask()
             os.chmod(stage, mode)
             yield stage
-            _sync(stage)
+            if sync:
+                _sync(stage)
             if folder.is_dir():
                 _carry_over(folder, stage, replaces)
                 if _exchange(stage, folder):

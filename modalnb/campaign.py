@@ -36,10 +36,13 @@ Running
 
 Resuming
     With ``out=DIR`` every set's ``modalnb fit`` files go to ``DIR/sets/<set>/`` together
-    with ``campaign_set.json`` (the checksums of its records file and of its recipe);
-    each folder is built beside its place and swapped in whole. A re-run fits only the
-    sets whose folder is missing, failed, or whose checksums changed, and reads the others
-    back from their ``modes.nc``; the summary files (``tracked_modes.csv``, ``sets.csv``,
+    with ``campaign_set.json`` (the checksums of its records file, of its recipe and of
+    every file of the folder, and the few numbers the campaign needs of the set's table);
+    each folder is built beside its place and swapped in whole (not flushed to disk file
+    by file: a set that a machine crash left incomplete fails its checksums and is fitted
+    again). A re-run fits only the sets whose folder is missing, failed, damaged or whose
+    inputs changed, and takes the others' numbers from their ``campaign_set.json``
+    (no table is read back); the summary files (``tracked_modes.csv``, ``sets.csv``,
     ``campaign.nc``, ``campaign_recipe.json``, ``campaign.html``) are replaced together at
     the end. With a cluster on other machines, the records and DIR must be on a disk the
     workers share.
@@ -65,6 +68,7 @@ import xarray as xr
 
 from ._errors import ModalnbError
 from ._files import staged_files
+from ._netcdf import load_netcdf4, netcdf4_engine
 from .recipe import Recipe, load_recipe
 
 __all__ = [
@@ -94,6 +98,13 @@ TRACKED_COLUMNS = ("set", "mode", "frequency_hz", "damping_ratio", "frequency_hz
                    "damping_ratio_std", "mac_to_reference", "frequency_change_pct", "status")
 #: First columns of ``sets.csv``; the manifest labels follow.
 SETS_COLUMNS = ("set", "records", "status", "verdict", "n_modes", "extra_modes")
+
+#: dask settings of the embedded ``LocalCluster``'s workers: dask's sampling profiler
+#: (a thread in every worker that records call stacks every 10 ms and keeps them) is
+#: off, so a worker's memory does not grow with the number of sets it fits and no CPU
+#: goes to sampling. An existing cluster (``scheduler=``) keeps its own settings
+#: (``distributed.worker.profile.enabled: false`` in its dask configuration does the same).
+EMBEDDED_WORKER_CONFIG: dict[str, Any] = {"distributed.worker.profile.enabled": False}
 
 CAMPAIGN_RECIPE_FORMAT = "modalnb-campaign-recipe"
 SET_MARKER = "campaign_set.json"
@@ -288,41 +299,56 @@ def _recipe_digest(recipe_json: str) -> str:
 
 
 # --------------------------------------------------------------------------- one set
-def _summary(table: xr.Dataset) -> dict[str, Any]:
-    """What the campaign needs of a set's modal table (small: modes x channels).
+_SUMMARY_NUMBERS = ("frequency_hz", "damping_ratio", "frequency_hz_std", "damping_ratio_std")
 
-    A table with shapes over nodes (a roving-hammer set) gives those instead, over its
-    nodes (a node without a value counts as 0 in the MAC)."""
+
+def _summary_record(table: xr.Dataset) -> dict[str, Any]:
+    """What the campaign needs of a set's modal table (small: modes x channels), as plain
+    lists: kept in the set's ``campaign_set.json`` (floats as JSON numbers: exact) and read
+    back by a re-run instead of the table."""
+    rec: dict[str, Any] = {name: np.asarray(table[name].values, float).tolist() for name in _SUMMARY_NUMBERS}
+    rec["mode"] = [int(m) for m in np.asarray(table["mode"].values).tolist()]
     if "node_shape_amplitude" in table.data_vars:
-        amp = np.nan_to_num(np.asarray(table["node_shape_amplitude"].values, float))
-        ph = np.nan_to_num(np.asarray(table["node_shape_phase_deg"].values, float))
-        shapes = amp * np.exp(1j * np.deg2rad(ph))
-        return {
-            "frequency_hz": np.asarray(table["frequency_hz"].values, float),
-            "damping_ratio": np.asarray(table["damping_ratio"].values, float),
-            "frequency_hz_std": np.asarray(table["frequency_hz_std"].values, float),
-            "damping_ratio_std": np.asarray(table["damping_ratio_std"].values, float),
-            "mode": [int(m) for m in np.asarray(table["mode"].values).tolist()],
-            "channel": [str(c) for c in np.asarray(table["node"].values).tolist()],
-            "shapes": shapes,
-        }
-    amp = np.asarray(table["shape_amplitude"].values, float) if "shape_amplitude" in table else None
-    ph = np.asarray(table["shape_phase_deg"].values, float) if "shape_phase_deg" in table else None
-    shapes = amp * np.exp(1j * np.deg2rad(ph)) if amp is not None and ph is not None else None
-    return {
-        "frequency_hz": np.asarray(table["frequency_hz"].values, float),
-        "damping_ratio": np.asarray(table["damping_ratio"].values, float),
-        "frequency_hz_std": np.asarray(table["frequency_hz_std"].values, float),
-        "damping_ratio_std": np.asarray(table["damping_ratio_std"].values, float),
-        "mode": [int(m) for m in np.asarray(table["mode"].values).tolist()],
-        "channel": [str(c) for c in np.asarray(table["channel"].values).tolist()] if "channel" in table.coords else [],
-        "shapes": shapes,
-    }
+        # a table with shapes over nodes (a roving-hammer set) is compared over its nodes
+        # (a node without a value counts as 0 in the MAC)
+        rec["channel"] = [str(c) for c in np.asarray(table["node"].values).tolist()]
+        for name, src in (("shape_amplitude", "node_shape_amplitude"),
+                          ("shape_phase_deg", "node_shape_phase_deg")):
+            rec[name] = np.nan_to_num(np.asarray(table[src].values, float)).tolist()
+        return rec
+    rec["channel"] = [str(c) for c in np.asarray(table["channel"].values).tolist()] if "channel" in table.coords else []
+    for name in ("shape_amplitude", "shape_phase_deg"):
+        rec[name] = np.asarray(table[name].values, float).tolist() if name in table else None
+    return rec
+
+
+def _summary_from_record(rec: Mapping[str, Any]) -> dict[str, Any]:
+    """The summary arrays of :func:`_summary_record`'s lists (the same numbers, first run
+    or re-run)."""
+    amp, ph = rec.get("shape_amplitude"), rec.get("shape_phase_deg")
+    shapes = None
+    if amp is not None and ph is not None:
+        dims = (len(rec["mode"]), len(rec["channel"]))
+        shapes = np.asarray(amp, float).reshape(dims) * np.exp(
+            1j * np.deg2rad(np.asarray(ph, float).reshape(dims)))
+    out: dict[str, Any] = {name: np.asarray(rec[name], float) for name in _SUMMARY_NUMBERS}
+    out["mode"] = [int(m) for m in rec["mode"]]
+    out["channel"] = [str(c) for c in rec["channel"]]
+    out["shapes"] = shapes
+    return out
+
+
+def _summary(table: xr.Dataset) -> dict[str, Any]:
+    """What the campaign needs of a set's modal table."""
+    return _summary_from_record(_summary_record(table))
+
+
+def _bytes_digest(data: bytes) -> str:
+    return "sha256:" + hashlib.sha256(data).hexdigest()
 
 
 def _read_table(path: Path) -> xr.Dataset:
-    with xr.open_dataset(path, engine="h5netcdf") as ds:
-        return ds.load()
+    return load_netcdf4(path)
 
 
 def _remove_stale(sets_dir: Path) -> None:
@@ -359,34 +385,57 @@ def _fit_set(label: str, records: str, recipe_json: str, set_dir: str | None,
         if isinstance(exc, OSError) and not isinstance(exc, ModalnbError) and exc.filename:
             msg = f"{exc.filename}: {exc.strerror or exc}"
         return {"status": msg}
+    summary = _summary_record(table)
     if set_dir is not None:
         # the set's folder is replaced whole (built beside it, then exchanged: the marker
-        # arrives with the table or not at all)
-        marker = {"set": label, "records": records, "records_sha256": digests[0],
-                  "recipe_sha256": digests[1], "status": status}
-        text = json.dumps(marker, indent=2) + "\n"
+        # arrives with the table or not at all). Not flushed to disk file by file: the
+        # marker, written last, holds the checksum of every other file of the set, so a
+        # set a machine crash left incomplete is found by a re-run and fitted again.
+        def write_marker(p: Path) -> None:
+            files = {f.name: _bytes_digest(f.read_bytes())
+                     for f in sorted(p.parent.iterdir()) if f.is_file() and f.name != SET_MARKER}
+            marker = {"set": label, "records": records, "records_sha256": digests[0],
+                      "recipe_sha256": digests[1], "status": status, "files": files,
+                      "summary": summary}
+            p.write_text(json.dumps(marker, indent=1) + "\n", encoding="utf-8")
+
         write_modal_table(table, Path(set_dir), recipe=recipe, checks=checks,
-                          extra_files={SET_MARKER: lambda p: p.write_text(text, encoding="utf-8")})
-    out = _summary(table)
+                          extra_files={SET_MARKER: write_marker}, durable=False)
+    out = _summary_from_record(summary)
     out["status"] = status
     return out
 
 
 def _finished(set_dir: Path, digests: tuple[str | None, str]) -> dict[str, Any] | None:
-    """The summary of a set already fitted with the same inputs, else None."""
+    """The summary of a set already fitted with the same inputs, else None.
+
+    Read from the set's ``campaign_set.json`` after checking the checksum of every file it
+    lists (no table is read and nothing is refitted); a marker of an older modalnb without
+    the summary reads the set's ``modes.nc``."""
     marker = set_dir / SET_MARKER
-    if digests[0] is None or not marker.is_file() or not (set_dir / "modes.nc").is_file():
+    if digests[0] is None or not marker.is_file():
         return None
     try:
         info = json.loads(marker.read_text(encoding="utf-8"))
     except (OSError, ValueError):
         return None
-    if (info.get("status") != "ok" or info.get("records_sha256") != digests[0]
-            or info.get("recipe_sha256") != digests[1]):
+    if (not isinstance(info, dict) or info.get("status") != "ok"
+            or info.get("records_sha256") != digests[0] or info.get("recipe_sha256") != digests[1]):
         return None
+    files = info.get("files")
     try:
-        out = _summary(_read_table(set_dir / "modes.nc"))
-    except (OSError, ValueError, KeyError):
+        if isinstance(files, dict) and isinstance(info.get("summary"), dict):
+            if "modes.nc" not in files:
+                return None
+            for name, digest in files.items():
+                if _bytes_digest((set_dir / str(name)).read_bytes()) != digest:
+                    return None
+            out = _summary_from_record(info["summary"])
+        else:
+            if not (set_dir / "modes.nc").is_file():
+                return None
+            out = _summary(_read_table(set_dir / "modes.nc"))
+    except (OSError, ValueError, KeyError, TypeError):
         return None
     out["status"] = "ok"
     return out
@@ -591,14 +640,16 @@ def _run_sets(jobs: list[tuple[Any, ...]], workers: int | None, scheduler: str |
         return
     import logging
 
+    import dask
     from distributed import Client, LocalCluster, as_completed
 
     cluster = None
     if scheduler is None:
         n = workers if workers is not None else (os.cpu_count() or 1)
         n = max(1, min(int(n), len(jobs)))
-        cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
-                               dashboard_address=":0", silence_logs=logging.ERROR)
+        with dask.config.set(EMBEDDED_WORKER_CONFIG):
+            cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
+                                   dashboard_address=":0", silence_logs=logging.ERROR)
         client = Client(cluster)
     else:
         client = Client(scheduler)
@@ -906,5 +957,5 @@ def write_campaign_files(ds: xr.Dataset, out_dir: str | os.PathLike[str]) -> dic
     with staged_files(out) as stage:
         for name, text in texts.items():
             stage(name).write_bytes(text.encode("utf-8"))
-        nc.to_netcdf(stage("campaign.nc"), engine="h5netcdf")
+        nc.to_netcdf(stage("campaign.nc"), engine=netcdf4_engine())
     return {name: out / name for name in [*texts, "campaign.nc"]}

@@ -7,12 +7,14 @@ state matrix (see tests/test_campaign.py, ``part_truth``).
 
 from __future__ import annotations
 
+import json
 import os
 import shutil
 import signal
 import subprocess
 import sys
 import textwrap
+import time
 
 import numpy as np
 import pytest
@@ -116,3 +118,88 @@ def test_resume_after_sigkill_refits_only_unfinished_sets(tmp_path, monkeypatch)
 
     fit_campaign(manifest, out=out, workers=0, recipe=Recipe(band=(5.0, 900.0)))
     assert calls == [f"P00{k}" for k in range(1, 7)]
+
+
+def _finished_sets(out) -> list[str]:
+    """Set folders a run has finished (the marker arrives with the folder, in one step)."""
+    sets = out / "sets"
+    if not sets.is_dir():
+        return []
+    return sorted(p.name for p in sets.iterdir()
+                  if not p.name.startswith(".") and (p / campaign.SET_MARKER).is_file())
+
+
+def test_resume_after_the_whole_command_on_a_cluster_is_sigkilled(tmp_path, monkeypatch):
+    # `modalnb campaign` on an embedded 2-worker LocalCluster, killed from outside (its
+    # whole process group: the command and its dask workers) once a set has finished;
+    # the re-run fits exactly the sets that had no finished folder, the others untouched
+    manifest = production_campaign(tmp_path / "data", n_parts=12, cracked=[], seed=8, n_samples=N_SAMPLES)
+    out = tmp_path / "out"
+    proc = subprocess.Popen([sys.executable, "-m", "modalnb.cli", "campaign", str(manifest),
+                             "--out", str(out), "--workers", "2"],
+                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
+    try:
+        for _ in range(30_000):  # up to ~5 min on a loaded machine; no timing is asserted
+            if _finished_sets(out) or proc.poll() is not None:
+                break
+            time.sleep(0.01)
+        os.killpg(proc.pid, signal.SIGKILL)
+    finally:
+        proc.wait(timeout=60)
+    assert proc.returncode == -signal.SIGKILL  # killed, not finished on its own
+    finished = _finished_sets(out)
+    assert finished, "no set finished before the kill"
+    unfinished = [f"P{k:03d}" for k in range(1, 13) if f"P{k:03d}" not in finished]
+    assert unfinished, "every set finished before the kill: nothing to resume"
+    assert not (out / "tracked_modes.csv").exists()
+    stamp = {s: ((out / "sets" / s / "modes.nc").stat().st_ino,
+                 (out / "sets" / s / campaign.SET_MARKER).read_bytes()) for s in finished}
+
+    calls: list[str] = []
+    real = campaign._fit_set
+
+    def counting(label, *args):
+        calls.append(label)
+        return real(label, *args)
+
+    monkeypatch.setattr(campaign, "_fit_set", counting)
+    ds = fit_campaign(manifest, out=out, workers=0)
+    assert calls == unfinished
+    assert list(ds["set_status"].values) == ["ok"] * 12
+    assert {s: ((out / "sets" / s / "modes.nc").stat().st_ino,
+                (out / "sets" / s / campaign.SET_MARKER).read_bytes()) for s in finished} == stamp
+    assert _finished_sets(out) == [f"P{k:03d}" for k in range(1, 13)]
+    # the resumed campaign equals one run start to end (same tracked_modes.csv, byte for byte)
+    fresh = tmp_path / "fresh"
+    monkeypatch.setattr(campaign, "_fit_set", real)
+    fit_campaign(manifest, out=fresh, workers=0)
+    assert (out / "tracked_modes.csv").read_bytes() == (fresh / "tracked_modes.csv").read_bytes()
+
+
+def test_a_set_whose_files_were_damaged_is_fitted_again(tmp_path, monkeypatch):
+    # set folders are not flushed to disk file by file; the marker's checksums of the
+    # set's files let a re-run find a set a machine crash left incomplete
+    manifest = production_campaign(tmp_path / "data", n_parts=4, cracked=[], seed=9, n_samples=N_SAMPLES)
+    out = tmp_path / "out"
+    fit_campaign(manifest, out=out, workers=0)
+    first = (out / "tracked_modes.csv").read_bytes()
+    marker = json.loads((out / "sets" / "P002" / campaign.SET_MARKER).read_text())
+    assert {"modes.nc", "modes.csv", "shapes.csv", "hits.csv", "recipe.json"} <= set(marker["files"])
+    (out / "sets" / "P002" / "shapes.csv").write_bytes(b"")  # as a crash may leave a file
+    with open(out / "sets" / "P003" / "modes.nc", "r+b") as fh:  # one byte changed
+        fh.seek(200)
+        b = fh.read(1)
+        fh.seek(200)
+        fh.write(bytes([b[0] ^ 0xFF]))
+    calls: list[str] = []
+    real = campaign._fit_set
+
+    def counting(label, *args):
+        calls.append(label)
+        return real(label, *args)
+
+    monkeypatch.setattr(campaign, "_fit_set", counting)
+    fit_campaign(manifest, out=out, workers=0)
+    assert calls == ["P002", "P003"]
+    assert (out / "tracked_modes.csv").read_bytes() == first
+    assert (out / "sets" / "P002" / "shapes.csv").stat().st_size > 0

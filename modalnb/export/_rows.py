@@ -57,17 +57,17 @@ def _csv_cell(x: Any) -> str:
 
 
 def _rows(ds: xr.Dataset, dims: tuple[str, ...], first: Iterable[str], rename: dict[str, str]) -> list[dict[str, Any]]:
-    names = [n for n in ds.data_vars if tuple(ds[n].dims) == dims]
+    names = [n for n, v in ds.data_vars.items() if tuple(v.dims) == dims]
     cols = {rename.get(n, n): n for n in names}
     order = [c for c in first if c not in dims]
     order += sorted(c for c in cols if c not in order)
+    values = {c: ds.variables[cols[c]].values for c in order if c in cols}  # each array once
     rows = []
     index = [ds[d].values for d in dims]
     for idx in np.ndindex(*(len(i) for i in index)):
         row: dict[str, Any] = {d: _value(index[k][idx[k]]) for k, d in enumerate(dims)}
-        for c in order:
-            if c in cols:
-                row[c] = _value(ds[cols[c]].values[idx])
+        for c, v in values.items():
+            row[c] = _value(v[idx])
         rows.append(row)
     return rows
 

@@ -39,6 +39,7 @@ import numpy as np
 import xarray as xr
 
 from .._files import replaced_folder
+from .._netcdf import netcdf4_engine
 from ..recipe import Recipe
 from ._aside import ASIDE_COLUMNS, aside_rows
 from ._rows import (
@@ -99,6 +100,7 @@ def write_modal_table(
     checks: xr.Dataset | None = None,
     extra_files: Mapping[str, Callable[[Path], object]] | None = None,
     records: xr.Dataset | None = None,
+    durable: bool = True,
 ) -> dict[str, Path]:
     """Write the modal table files into `out_dir` (created if needed), all or nothing.
 
@@ -116,10 +118,15 @@ def write_modal_table(
         Output of :func:`modalnb.check_hits`, for the ``warnings`` column.
     extra_files : mapping of file name to writer, optional
         More files of the same set: ``writer(path)`` writes the file at `path` in the
-        staging folder (e.g. ``{"report.html": lambda p: write_report(ds, result, None, p)}``).
+        staging folder (e.g. ``{"report.html": lambda p: write_report(ds, result, None, p)}``),
+        after the table's own files (in the order given).
     records : xarray.Dataset, optional
         The record set of the table: when it carries ``force``, ``frf.nc`` is written too
         (without force there is no FRF and no ``frf.nc``).
+    durable : bool
+        Flush the files to disk before the folder is replaced (default). False for a
+        caller that keeps checksums of the files and writes a set again when they do not
+        match (:func:`modalnb.fit_campaign`'s set folders).
 
     Returns
     -------
@@ -160,10 +167,10 @@ def write_modal_table(
         from .frf_file import write_table_frf
 
         extra["frf.nc"] = lambda path: write_table_frf(records, result, path)
-    with replaced_folder(out) as stage:
+    with replaced_folder(out, sync=durable) as stage:
         for name, text in texts.items():
             (stage / name).write_bytes(text.encode("utf-8"))
-        _netcdf_ready(result).to_netcdf(stage / "modes.nc", engine="h5netcdf")
+        _netcdf_ready(result).to_netcdf(stage / "modes.nc", engine=netcdf4_engine())
         for name, write in extra.items():
             write(stage / name)
     return {name: out / name for name in [*texts, "modes.nc", *extra]}

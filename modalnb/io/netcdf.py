@@ -1,5 +1,9 @@
 """netCDF record files: reading (netCDF4/HDF5 and classic netCDF3) and writing (netCDF4).
 
+netCDF4 files are read with :func:`modalnb._netcdf.netcdf4_engine` (netCDF-C when the
+netCDF4 package is installed, several times faster on small files; h5netcdf otherwise,
+and for a file netCDF-C refuses).
+
 The file must already hold the record-set layout (:mod:`modalnb.records`); the reader
 only decodes it (strings, integer widths) and rebuilds it through
 :func:`modalnb.records.build_records`. :func:`save_records` writes netCDF4 atomically.
@@ -16,6 +20,7 @@ import xarray as xr
 
 from .._errors import RecordError
 from .._files import atomic_write_with
+from .._netcdf import FALLBACK_ENGINE, netcdf4_engine
 from ..records import _str_array, build_records, record_parts, validate_records
 from ._common import plain_attrs
 
@@ -33,7 +38,7 @@ def _engine(src: str, head: bytes) -> str:
     if head.startswith(NETCDF3_MAGIC):
         return "scipy"
     if head.startswith(HDF5_MAGIC):
-        return "h5netcdf"
+        return netcdf4_engine()
     raise RecordError(
         f"{src}: not a netCDF file (first bytes {head[:4]!r}; netCDF3 starts with b'CDF', "
         "netCDF4 with b'\\x89HDF'). Hint: check that the file was written as netCDF."
@@ -43,9 +48,17 @@ def _engine(src: str, head: bytes) -> str:
 def _load(path: Path, src: str, engine: str) -> xr.Dataset:
     try:
         extra = {"mmap": False} if engine == "scipy" else {}
-        ds = xr.load_dataset(
-            path, engine=engine, decode_times=False, decode_timedelta=False, **extra
-        )
+        try:
+            ds = xr.load_dataset(
+                path, engine=engine, decode_times=False, decode_timedelta=False, **extra
+            )
+        except (*_LOAD_ERRORS, RuntimeError):
+            if engine != "netcdf4":
+                raise
+            # an HDF5 file netCDF-C refuses: h5netcdf's reading (and its error) decides
+            ds = xr.load_dataset(
+                path, engine=FALLBACK_ENGINE, decode_times=False, decode_timedelta=False
+            )
     except _LOAD_ERRORS as exc:
         kind = "netCDF3" if engine == "scipy" else "netCDF4/HDF5"
         raise RecordError(

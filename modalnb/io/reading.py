@@ -45,8 +45,9 @@ def open_records(
     :mod:`modalnb.io.registry`):
 
     ``.nc``
-        netCDF4/HDF5 (read with engine ``"h5netcdf"``) or classic netCDF3 (engine
-        ``"scipy"``), told apart by the first bytes; the file must already hold the
+        netCDF4/HDF5 (read with engine ``"netcdf4"`` when the netCDF4 package is
+        installed, else, or when netCDF-C refuses the file, ``"h5netcdf"``) or classic
+        netCDF3 (engine ``"scipy"``), told apart by the first bytes; the file must already hold the
         record-set layout. Loaded fully into memory and closed. String coordinates come
         back as object arrays of ``str``, ``hit`` as int64.
     ``.csv``, ``.txt``
