@@ -105,7 +105,8 @@ def _uniform_oscillating(t: np.ndarray, sigma: np.ndarray, w: np.ndarray) -> np.
     lam = -sigma + 1j * w
     inner = np.exp(np.multiply.outer(np.arange(BLOCK) * dt, lam))  # (B, M)
     outer = np.exp(np.multiply.outer(float(t[0]) + np.arange(nb) * (BLOCK * dt), lam))
-    return (outer[:, None, :] * inner[None, :, :]).reshape(nb * BLOCK, -1)[:n]
+    with np.errstate(over="ignore", invalid="ignore"):  # a growing trial mode: inf, as exp gives
+        return (outer[:, None, :] * inner[None, :, :]).reshape(nb * BLOCK, -1)[:n]
 
 
 def basis_matrix(

@@ -139,7 +139,7 @@ class Problem:
 
     def _derivatives(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray,
                                                    np.ndarray, np.ndarray]:
-        """``(Phi, Q, R, D, E)`` at `x`, ``E = (I - Q Q^T) D``: the signal-free pieces of
+        """``(Phi, Q, R, D, E^T E)`` at `x`, ``E = (I - Q Q^T) D``: the signal-free pieces of
         Kaufman's Jacobian, kept for the last point asked (``D`` as in :meth:`_projection`;
         ``Q, R`` of a basis with non-finite entries are those of its finite part)."""
         key = np.asarray(x, float).tobytes()
@@ -163,8 +163,10 @@ class Problem:
             ddu = basis_du_matrix(t, sigma, u, phi)
             np.multiply(ddu.reshape(t.size, m, 2), self.w_scale**2, out=dmat4[:, :, 2:4])
             dmat = _finite_or_zero(dmat)
-            e = dmat - q @ (q.T @ dmat)
-        out = (phi, q, rr, dmat, e)
+            # E^T E = D^T D - (Q^T D)^T (Q^T D) (Q orthonormal): E itself is never needed
+            w = q.T @ dmat
+            ete = dmat.T @ dmat - w.T @ w
+        out = (phi, q, rr, dmat, ete)
         self._dcache = (key, out)
         return out
 
@@ -216,10 +218,9 @@ class Problem:
         with np.errstate(over="ignore", invalid="ignore"):
             # a trial point far out (a nearly growing mode) may overflow: such a point
             # gets a huge but finite normal matrix, so the step is simply refused
-            e = self._derivatives(x)[4]
+            ete = self._derivatives(x)[4].reshape(n, 2, n, 2)
             resid = (self.data_t - q @ qtd) if r is None else r.reshape(self.data_t.shape)
             cc = np.einsum("kap,lbp->kalb", cm, cm)  # C_k C_l^T
-            ete = (e.T @ e).reshape(n, 2, n, 2)
             jtj = np.einsum("iajb,iajb->ij", ete, cc[kk][:, :, kk])
             dtr = (dmat.T @ resid).reshape(n, 2, -1)
             g = -np.einsum("iap,iap->i", dtr, cm[kk])
