@@ -23,6 +23,7 @@ from modalnb.testing.bench import (
     peak_bands,
     run_bench,
     run_suite,
+    summed_power,
     write_bench_json,
 )
 from modalnb.testing.scenarios import Scenario, campaign
@@ -229,6 +230,26 @@ def test_curve_fit_peer_fits_the_strongest_channel_only() -> None:
     assert 0 < abs(shapes[0, 1, 0]) < abs(shapes[0, 0, 0])
 
 
+def test_one_fft_serves_the_peak_pick_and_the_half_power_guesses() -> None:
+    # the suite's peers take one 16x zero-padded FFT per signal: its every 4th bin is the
+    # 4x-padded spectrum (zero padding samples the same DTFT; any DSP text), so the peak
+    # pick is the one of its own FFT, and the curve_fit result does not change
+    rec, truth = campaign(CHAIN4)
+    y = rec["response"].values
+    start = int(np.searchsorted(rec["time"].values, 2 * CHAIN4.contact_s))
+    spec = summed_power(y[..., start:], CHAIN4.sample_rate, 16)
+    own = summed_power(y[..., start:], CHAIN4.sample_rate, 4)
+    np.testing.assert_allclose(spec[1][::4], own[1], rtol=1e-9, atol=1e-12 * own[1].max())
+    n = truth["frequency_hz"].size
+    bands = peak_bands(y[..., start:], CHAIN4.sample_rate, CHAIN4.band, n_peaks=n)
+    shared = peak_bands(y[..., start:], CHAIN4.sample_rate, CHAIN4.band, n_peaks=n,
+                        spectrum=(spec[0][::4], spec[1][::4]))
+    assert shared == bands
+    a = curve_fit_modes(y, CHAIN4.sample_rate, bands, start=start)
+    b = curve_fit_modes(y, CHAIN4.sample_rate, bands, start=start, spectrum=spec)
+    np.testing.assert_allclose(a, b, rtol=1e-12)
+
+
 def test_match_counts_missing_and_extra_modes() -> None:
     # hand-made lists: 3 true modes; found: one near each of the first two, one far
     idx, missing, extra = _match(np.array([100.2, 205.0, 700.0]), np.array([100.0, 200.0, 300.0]))
@@ -250,6 +271,10 @@ def test_suite_on_one_small_campaign(tmp_path) -> None:
                 "refit_ms_worst", "missing_modes_max", "extra_modes_max"):
         assert row[key] is not None and row[key] >= 0, key
     assert "refit_error" not in row
+    # speed judged at the issue's sizes (issue 9, sect. 2): 8 hits x 32 channels x 4096
+    # samples of the same physics, refit on 5 hits x 16 channels; own size kept as info
+    assert row["speed_shape"] == [8, 32, 4096] and row["refit_shape"] == [5, 16, 2048]
+    assert row["own_fit_modes_s"] > 0 and row["speed_missing_modes"] == 0
     assert res["summary"]["fit_modes_s"]["worst"] == row["fit_modes_s"]
     full = {"accuracy": [], "suite": res, "targets": {
         "ratio_max_20_40_db": 1.2, "calibration": [0.7, 1.4], "fit_over_curve_fit": 0.5,

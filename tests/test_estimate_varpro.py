@@ -195,3 +195,83 @@ def test_one_gauss_newton_step_lands_near_the_least_squares_poles():
     got = one_step(prob, x0)
     np.testing.assert_allclose(got, ref, rtol=1e-6)
     assert np.max(np.abs(got / x_true - 1)) < 1e-5  # at least ten times closer
+
+
+# --- speed paths (issue 9, sect. 2): each against an independent reference ----------------
+def test_reduced_refinement_takes_the_full_problems_steps() -> None:
+    # the Gram form (Problem.reduced) has the cost, gradient and normal matrix of the full
+    # projected residual, so scipy's trf takes the same steps: the same point as the full
+    # (N P, n) problem, also when stopped at the budget (two modes, 30 and 70 Hz, 3 signals)
+    from modalnb.estimate._varpro import Problem, refine
+
+    fs = 1024.0
+    t = np.arange(1024) / fs
+    rng = np.random.default_rng(1)
+    y = (np.exp(-0.02 * 2 * np.pi * 30 * t) * np.cos(2 * np.pi * 30 * t)
+         + 0.5 * np.exp(-0.01 * 2 * np.pi * 70 * t) * np.sin(2 * np.pi * 70 * t)
+         + 1e-3 * rng.standard_normal((3, t.size)))
+    prob = Problem(np.ascontiguousarray(y.T), t, 2 * np.pi * 100.0)
+    x0 = prob.pack([3.5, 4.6], [(2 * np.pi * 30.3) ** 2, (2 * np.pi * 69.6) ** 2])
+    for budget in (3, 50):
+        full, red = refine(prob, x0, budget), refine(prob, x0, budget, reduced=True)
+        np.testing.assert_allclose(red.x, full.x, rtol=1e-9)
+        assert red.aborted == full.aborted
+    r, jac = prob.reduced(x0)
+    rf, jf = prob.residual(x0), prob.kaufman_jacobian(x0)
+    np.testing.assert_allclose(r @ r, rf @ rf, rtol=1e-10)
+    np.testing.assert_allclose(jac.T @ r, jf.T @ rf, rtol=1e-7, atol=1e-9 * np.abs(jf.T @ rf).max())
+    np.testing.assert_allclose(jac.T @ jac, jf.T @ jf, rtol=1e-8, atol=1e-10 * np.abs(jf.T @ jf).max())
+
+
+def test_cholesky_qr_against_householder() -> None:
+    # thin_qr against numpy's Householder QR (LAPACK geqrf): the same projector Q Q^T and
+    # |R| to rounding on a basis of damped modes; an ill-conditioned basis (two equal
+    # columns up to 1e-9) goes to Householder
+    from modalnb.estimate._basis import basis_matrix
+    from modalnb.estimate._varpro import thin_qr
+
+    t = np.arange(4000) / 4096.0
+    phi = basis_matrix(t, np.array([3.0, 8.0, 20.0]), (2 * np.pi * np.array([90.0, 400.0, 1300.0])) ** 2)
+    q, r = thin_qr(phi)
+    q0, r0 = np.linalg.qr(phi)
+    np.testing.assert_allclose(q.T @ q, np.eye(q.shape[1]), atol=1e-13)
+    np.testing.assert_allclose(q @ q.T @ phi[:, 0], q0 @ q0.T @ phi[:, 0], atol=1e-13)
+    np.testing.assert_allclose(np.abs(r), np.abs(r0), rtol=1e-10, atol=1e-12 * np.abs(r0).max())
+    bad = np.column_stack([phi[:, 0], phi[:, 0] * (1 + 1e-9), phi[:, 1]])
+    qb, rb = thin_qr(bad)
+    np.testing.assert_allclose(qb @ rb, bad, atol=1e-12)
+    np.testing.assert_allclose(qb.T @ qb, np.eye(3), atol=1e-12)
+
+
+def test_block_basis_against_direct_evaluation() -> None:
+    # the equally-spaced-grid basis (block products of complex exponentials) against
+    # exp * cos and exp * sin evaluated per mode (mode_columns), oscillating and overdamped
+    from modalnb.estimate._basis import basis_matrix, mode_columns
+
+    t = 0.25 + np.arange(5000) / 4096.0
+    sigma = np.array([2.0, 30.0, 80.0])
+    u = np.array([(2 * np.pi * 1700.0) ** 2, (2 * np.pi * 55.0) ** 2, -400.0])
+    phi = basis_matrix(t, sigma, u)
+    for k in range(3):
+        c, s = mode_columns(t, sigma[k], u[k])
+        np.testing.assert_allclose(phi[:, 2 * k], c, atol=1e-12)
+        np.testing.assert_allclose(phi[:, 2 * k + 1], s, atol=1e-12 * np.abs(s).max())
+
+
+def test_cross_check_band_pass_is_scipys_butterworth() -> None:
+    # the band-pass sections built from the poles against scipy.signal.butter(output="sos"):
+    # the same frequency response (sosfreqz) and the same filtered signal to rounding
+    from scipy.signal import butter, sosfiltfilt, sosfreqz
+
+    from modalnb.estimate._xcheck import _bandpass_sos
+
+    fs = 4096.0
+    x = np.random.default_rng(3).standard_normal(4096)
+    for lo, hi in ((100.0, 140.0), (10.0, 30.0), (1500.0, 1800.0)):
+        ref = butter(4, [lo, hi], btype="bandpass", fs=fs, output="sos")
+        ours = _bandpass_sos(lo, hi, fs)
+        _, h0 = sosfreqz(ref, worN=2048, fs=fs)
+        _, h1 = sosfreqz(ours, worN=2048, fs=fs)
+        np.testing.assert_allclose(h1, h0, atol=1e-10)
+        y0, y1 = sosfiltfilt(ref, x), sosfiltfilt(ours, x)
+        np.testing.assert_allclose(y1, y0, atol=1e-9 * np.abs(y0).max())

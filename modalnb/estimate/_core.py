@@ -340,9 +340,10 @@ def fit_core(
         # converged to the relative offset, the refinement could move the poles by a
         # negligible fraction of a standard deviation only: it runs when its report is asked
         res = Refinement(prob, x.copy(), max_nfev or 10 * (x.size + 1), x.copy(), None, False,
-                         deferred=True)
+                         deferred=True, reduced=True)
     elif polish:
-        res = refine(prob, x, max_nfev=max_nfev or min(10 * (x.size + 1), MAX_REFINE_NFEV))
+        res = refine(prob, x, max_nfev=max_nfev or min(10 * (x.size + 1), MAX_REFINE_NFEV),
+                     reduced=True)
         x_l = res.x
         if float(np.sum(prob.residual(x_l) ** 2)) <= float(np.sum(prob.residual(x) ** 2)):
             x = x_l

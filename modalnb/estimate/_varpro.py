@@ -28,6 +28,49 @@ def _finite_or_zero(a: np.ndarray) -> np.ndarray:
     return np.nan_to_num(a, nan=0.0, posinf=0.0, neginf=0.0)
 
 
+#: Largest condition number of the column-scaled basis for the Cholesky QR
+#: (:func:`thin_qr`); CholeskyQR2 is orthogonal to rounding below about
+#: ``eps**-1/2 = 7e7`` (Yamamoto et al. 2015); 1e6 keeps a margin of almost two decades.
+CHOLESKY_QR_COND = 1e6
+
+
+def thin_qr(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Thin QR of a tall matrix: CholeskyQR2 on the column-scaled matrix, Householder
+    (``numpy.linalg.qr``) when that is ill-conditioned.
+
+    CholeskyQR2: ``R1 = chol(B^T B)``, ``Q1 = B R1^-1``, then once more on ``Q1``
+    (Fukaya, Nakatsukasa, Yanagisawa & Yamamoto 2014, "CholeskyQR2: a simple and
+    communication-avoiding algorithm for computing a tall-skinny QR factorization",
+    ScalA'14; Yamamoto, Nakatsukasa, Yanagisawa & Fukaya 2015, ETNA 44): the second pass
+    makes ``Q`` orthogonal to rounding when ``cond(B) <~ eps^-1/2``. ``B = A D^-1`` with
+    ``D`` the column norms (the basis's sine columns are scaled by ``1/w``). Its work is
+    matrix products (level-3 BLAS), faster than Householder's on a few dozen columns.
+    ``R`` has a positive diagonal (Householder's may not: ``Q`` then differs by column
+    signs; ``Q Q^T`` and ``R^-1 Q^T`` do not).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> a = np.random.default_rng(0).standard_normal((200, 5))
+    >>> q, r = thin_qr(a)
+    >>> bool(np.allclose(q @ r, a) and np.allclose(q.T @ q, np.eye(5)))
+    True
+    """
+    norms = np.sqrt(np.einsum("ij,ij->j", a, a))
+    if a.shape[0] >= a.shape[1] and norms.size and np.all(norms > 0):
+        b = a / norms
+        try:
+            r1 = np.linalg.cholesky(b.T @ b).T
+            if np.linalg.cond(r1) <= CHOLESKY_QR_COND:
+                q = b @ np.linalg.inv(r1)
+                r2 = np.linalg.cholesky(q.T @ q).T
+                q = q @ np.linalg.inv(r2)
+                return q, (r2 @ r1) * norms
+        except np.linalg.LinAlgError:
+            pass
+    return np.linalg.qr(a)
+
+
 @dataclass
 class Problem:
     """Data of one VARPRO fit: signals (P, N) in weighted units, times from the window start."""
@@ -65,7 +108,7 @@ class Problem:
         with np.errstate(over="ignore", invalid="ignore", under="ignore"):
             phi = self.basis(x)
         if np.all(np.isfinite(phi)):
-            q, rr = np.linalg.qr(phi)
+            q, rr = thin_qr(phi)
         else:
             q = rr = None
         self._cache = (key, (phi, q, rr))
@@ -96,7 +139,7 @@ class Problem:
 
     def _derivatives(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray,
                                                    np.ndarray, np.ndarray]:
-        """``(Phi, Q, R, D, E)`` at `x`, ``E = (I - Q Q^T) D``: the signal-free pieces of
+        """``(Phi, Q, R, D, E^T E)`` at `x`, ``E = (I - Q Q^T) D``: the signal-free pieces of
         Kaufman's Jacobian, kept for the last point asked (``D`` as in :meth:`_projection`;
         ``Q, R`` of a basis with non-finite entries are those of its finite part)."""
         key = np.asarray(x, float).tobytes()
@@ -112,15 +155,18 @@ class Problem:
                 q, rr = np.linalg.qr(phi)
             m = sigma.size
             dmat = np.empty((t.size, 4 * m))
-            # d/dsigma of exp(-sigma t) f(t) is -t exp(-sigma t) f(t)
-            dsig = -(t[:, None] * phi[:, : 2 * m]) * self.w_scale
-            ddu = basis_du_matrix(t, sigma, u, phi) * self.w_scale**2
             dmat4 = dmat.reshape(t.size, m, 4)
-            dmat4[:, :, 0:2] = dsig.reshape(t.size, m, 2)
-            dmat4[:, :, 2:4] = ddu.reshape(t.size, m, 2)
+            # d/dsigma of exp(-sigma t) f(t) is -t exp(-sigma t) f(t) (written in place)
+            np.multiply(t[:, None, None], phi[:, : 2 * m].reshape(t.size, m, 2),
+                        out=dmat4[:, :, 0:2])
+            dmat4[:, :, 0:2] *= -self.w_scale
+            ddu = basis_du_matrix(t, sigma, u, phi)
+            np.multiply(ddu.reshape(t.size, m, 2), self.w_scale**2, out=dmat4[:, :, 2:4])
             dmat = _finite_or_zero(dmat)
-            e = dmat - q @ (q.T @ dmat)
-        out = (phi, q, rr, dmat, e)
+            # E^T E = D^T D - (Q^T D)^T (Q^T D) (Q orthonormal): E itself is never needed
+            w = q.T @ dmat
+            ete = dmat.T @ dmat - w.T @ w
+        out = (phi, q, rr, dmat, ete)
         self._dcache = (key, out)
         return out
 
@@ -172,16 +218,55 @@ class Problem:
         with np.errstate(over="ignore", invalid="ignore"):
             # a trial point far out (a nearly growing mode) may overflow: such a point
             # gets a huge but finite normal matrix, so the step is simply refused
-            e = self._derivatives(x)[4]
+            ete = self._derivatives(x)[4].reshape(n, 2, n, 2)
             resid = (self.data_t - q @ qtd) if r is None else r.reshape(self.data_t.shape)
             cc = np.einsum("kap,lbp->kalb", cm, cm)  # C_k C_l^T
-            ete = (e.T @ e).reshape(n, 2, n, 2)
             jtj = np.einsum("iajb,iajb->ij", ete, cc[kk][:, :, kk])
             dtr = (dmat.T @ resid).reshape(n, 2, -1)
             g = -np.einsum("iap,iap->i", dtr, cm[kk])
         big = np.finfo(float).max / 1e6
         return (np.nan_to_num(jtj, nan=0.0, posinf=big, neginf=-big),
                 np.nan_to_num(g, nan=0.0, posinf=big, neginf=-big))
+
+    def reduced(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``(r', J')``: a residual of n + 1 entries and its (n + 1, n) Jacobian with the
+        same ``|r'|^2``, ``J'^T J'`` and ``J'^T r'`` as the projected residual and Kaufman's
+        Jacobian at `x` (n parameters).
+
+        With ``J^T J = V diag(w) V^T``: ``J' = [diag(sqrt w) V^T; 0]`` and
+        ``r' = [diag(w)^-1/2 V^T J^T r; sqrt(|r|^2 - |diag(w)^-1/2 V^T J^T r|^2)]``. A
+        Gauss-Newton or trust-region method sees the residual only through these three
+        quantities (scipy's ``trf`` with the exact solver: the SVD of ``J`` gives the same
+        singular values, right vectors and ``U^T r``), so its iterates are those of the full
+        problem in exact arithmetic, at the cost of one normal-matrix build instead of an
+        SVD of an (N P, n) matrix (the Gram-matrix form of a least-squares problem, e.g.
+        Björck 1996, *Numerical Methods for Least Squares Problems*, SIAM, sect. 2.2; from
+        memory). The factorisation is kept for the last point asked.
+        """
+        x = np.asarray(x, float)
+        key = x.tobytes()
+        cache = getattr(self, "_rcache", None)
+        if cache is not None and cache[0] == key:
+            return cache[1]
+        n = x.size
+        r = self.residual(x)
+        jac = np.zeros((n + 1, n))
+        rr = np.zeros(n + 1)
+        if r.size and r[0] == 1e100 and np.all(r == 1e100):  # a growing-exponential trial
+            rr[n] = 1e100 * np.sqrt(float(r.size))
+        else:
+            cost = float(r @ r)
+            jtj, g = self.kaufman_normal(x, r)
+            w, v = np.linalg.eigh(0.5 * (jtj + jtj.T))
+            tiny = max(float(w.max(initial=0.0)), 0.0) * n * np.finfo(float).eps
+            pos = w > tiny
+            sw = np.sqrt(np.where(pos, w, 0.0))
+            jac[:n] = sw[:, None] * v.T
+            z = np.where(pos, (v.T @ g) / np.where(pos, sw, 1.0), 0.0)
+            rr[:n] = z
+            rr[n] = np.sqrt(max(cost - float(z @ z), 0.0))
+        self._rcache = (key, (rr, jac))
+        return rr, jac
 
     def coefficients(self, x: np.ndarray, data_t: np.ndarray | None = None) -> np.ndarray:
         """Linear coefficients (n_cols, P) by least squares at parameters `x`."""
@@ -338,6 +423,7 @@ class Refinement:
     scipy_result: Any
     aborted: bool
     deferred: bool = False
+    reduced: bool = False
     _lmfit: Any = None
 
     def minimizer_result(self) -> Any:
@@ -359,10 +445,12 @@ class Refinement:
             names = list(params)
 
             def fcn(pars: Any) -> np.ndarray:
-                return prob.residual(np.array([pars[n].value for n in names]))
+                x = np.array([pars[n].value for n in names])
+                return prob.reduced(x)[0] if self.reduced else prob.residual(x)
 
             def dfun(pars: Any) -> np.ndarray:
-                return prob.kaufman_jacobian(np.array([pars[n].value for n in names]))
+                x = np.array([pars[n].value for n in names])
+                return prob.reduced(x)[1] if self.reduced else prob.kaufman_jacobian(x)
 
             self._lmfit = lmfit.minimize(
                 fcn, params, method="least_squares", Dfun=dfun, x_scale="jac",
@@ -371,7 +459,7 @@ class Refinement:
         return self._lmfit
 
 
-def refine(prob: Problem, x0: np.ndarray, max_nfev: int) -> Refinement:
+def refine(prob: Problem, x0: np.ndarray, max_nfev: int, reduced: bool = False) -> Refinement:
     """Minimise the projected residual from `x0` with scipy's ``least_squares``.
 
     The trust-region reflective method (Branch, Coleman & Li 1999, "A subspace, interior,
@@ -382,6 +470,9 @@ def refine(prob: Problem, x0: np.ndarray, max_nfev: int) -> Refinement:
     makes for unbounded parameters (scipy gets twice the budget; the fit stops at the
     residual evaluation past `max_nfev` and returns that point, as lmfit does), so
     :meth:`Refinement.minimizer_result` reproduces it without lmfit on the fitting path.
+    With `reduced` the call gets :meth:`Problem.reduced` (n + 1 residuals with the same
+    cost, gradient and normal matrix: the same iterates in exact arithmetic, without an
+    SVD of the (N P, n) Jacobian per iteration), and so does its lmfit reproduction.
 
     Examples
     --------
@@ -404,10 +495,13 @@ def refine(prob: Problem, x0: np.ndarray, max_nfev: int) -> Refinement:
         state["last"] = x
         if state["nfev"] > max_nfev:
             raise _Abort
-        return _finite(prob.residual(np.array([float(v) for v in x])).ravel(), "residual")
+        xx = np.array([float(v) for v in x])
+        r = prob.reduced(xx)[0] if reduced else prob.residual(xx)
+        return _finite(r.ravel(), "residual")
 
     def jac(x: np.ndarray) -> np.ndarray:
-        return _finite(prob.kaufman_jacobian(np.array([float(v) for v in x])), "Jacobian")
+        xx = np.array([float(v) for v in x])
+        return _finite(prob.reduced(xx)[1] if reduced else prob.kaufman_jacobian(xx), "Jacobian")
 
     n = x0.size
     try:
@@ -416,8 +510,10 @@ def refine(prob: Problem, x0: np.ndarray, max_nfev: int) -> Refinement:
             ftol=LSQ_TOL, xtol=LSQ_TOL, gtol=LSQ_TOL, x_scale="jac", max_nfev=2 * max_nfev,
         )
     except _Abort:
-        return Refinement(prob, x0, max_nfev, np.array(state["last"], dtype=float), None, True)
-    return Refinement(prob, x0, max_nfev, np.array(ret.x, dtype=float), ret, False)
+        return Refinement(prob, x0, max_nfev, np.array(state["last"], dtype=float), None, True,
+                          reduced=reduced)
+    return Refinement(prob, x0, max_nfev, np.array(ret.x, dtype=float), ret, False,
+                      reduced=reduced)
 
 
 def covariance(prob: Problem, x: np.ndarray, rss: float, n_tot: int, n_lin: int) -> np.ndarray:
