@@ -171,4 +171,6 @@ def test_cli_roving_demo_writes_the_table_the_view_and_the_data(tmp_path, capsys
     # the report carries the moving shape view on the frame's geometry and the FRF section
     assert 'class="modalnb-shape-view"' in report and "modalnb-shape-placed" not in report
     assert "modalnb-frf-section" in report and "No FRF" not in report
+    # shapes over nodes, one table per mode, every node of the frame in each
+    assert report.count('class="node-shapes"') == 6 and report.count("<td>n14</td>") >= 6
     assert main(["demo", "--roving", "--campaign", "--out", str(tmp_path / "x")]) != 0

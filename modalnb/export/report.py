@@ -263,6 +263,42 @@ def _shapes(ctx: ReportContext) -> str:
             f'<div class="shape-grid">{"".join(blocks)}</div>')
 
 
+def _node_shapes(ctx: ReportContext) -> str:
+    """Shapes over nodes (roving hammer, several setups): one table per mode, with the
+    driving-point scaling when the table has it; empty for a table without them."""
+    r = ctx.result
+    if ctx.n_modes == 0 or "node_shape_amplitude" not in r:
+        return ""
+    amp = np.asarray(r["node_shape_amplitude"].values, float)
+    phase = np.asarray(r["node_shape_phase_deg"].values, float)
+    scaled = np.asarray(r["node_shape_mass_normalised"].values, float) \
+        if "node_shape_mass_normalised" in r else np.full_like(amp, np.nan)
+    names = [_text(n) for n in (r["node_name"].values if "node_name" in r.coords else r["node"].values)]
+    dirs = [_text(d) for d in r["node_direction"].values] if "node_direction" in r.coords else [""] * len(names)
+    roles = [_text(x) for x in r["node_role"].values] if "node_role" in r.coords else [""] * len(names)
+    blocks = []
+    for k in range(ctx.n_modes):
+        f = pm_cell(ctx.var("frequency_hz", k), ctx.var("frequency_hz_std", k), "Hz")
+        cap = f"Mode {_text(r['mode'].values[k])}: f_n = {f}" + ("" if f.endswith("Hz") else " Hz")
+        mass, mpc, status = ctx.var("modal_mass_kg", k), ctx.var("node_shape_mpc", k), ctx.var("node_shape_status", k)
+        if is_number(mass) and np.isfinite(mass):
+            cap += f"; modal mass {format_quantity(float(mass), 'amplitude', unit=False)} kg"
+        if is_number(mpc) and np.isfinite(mpc):
+            cap += f"; MPC {format_quantity(float(mpc), 'ratio', unit=False)}"
+        if status and str(status) != "ok":
+            cap += f"; {_text(status)}"
+        rows = [[n, d, ro, number_cell(amp[k, j], "amplitude"), number_cell(phase[k, j], "phase_deg"),
+                 number_cell(scaled[k, j], "amplitude")]
+                for j, (n, d, ro) in enumerate(zip(names, dirs, roles, strict=True))]
+        head = ["Node", "Direction", "Role", "Amplitude", "Phase [°]", "Scaled [kg^-1/2]"]
+        blocks.append(_table(head, rows, "node-shapes", numeric=(3, 4, 5), caption=cap))
+    return ("<p class=note>Shapes over the structure's nodes from every hit's residues "
+            "(roving hammer or several setups): amplitude normalised to 1 on the largest node, "
+            "phase relative to it, direction signs applied; scaled: mass-normalised through "
+            "the driving point (blank without one).</p>"
+            f'<div class="shape-grid">{"".join(blocks)}</div>')
+
+
 def _hits(ctx: ReportContext) -> str:
     rows = hits_rows(ctx.result, ctx.checks)
     ch = ctx.checks
@@ -364,6 +400,7 @@ SECTIONS: list[tuple[str, str, Callable[[ReportContext], str]]] = [
     ("cross-checks", "Damping cross-checks", _cross_checks),
     ("aside", ASIDE_TITLE, _aside),
     ("shapes", "Mode shapes", _shapes),
+    ("node-shapes", "Shapes over nodes", _node_shapes),
     ("hits", "Hit decisions", _hits),
     ("figures", "Figures", _figures_section),
     ("frf", "", lambda ctx: _frf_section(ctx)),
@@ -643,6 +680,8 @@ def report_html(
     body = [f'<header><h1>{_e(heading)}</h1><p class="note">Modal analysis of impact-hammer '
             f"records with modalnb {_e(package_version())}.</p></header>"]
     for sid, stitle, frag in sections:
+        if not frag:  # a section with nothing to say for this table (no force, no nodes)
+            continue
         h2 = f"<h2>{_e(stitle)}</h2>" if stitle else ""
         body.append(f'<section id="{_e(sid)}">{h2}{frag}</section>')
     return (
