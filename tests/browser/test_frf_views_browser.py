@@ -79,7 +79,7 @@ def page(lab, browser):
     name = _notebook(lab["root"])
     pg = browser.new_page()
     t0 = time.monotonic()
-    pg.goto(f"{lab['url']}/lab/tree/{name}?token={lab['token']}")
+    pg.goto(f"{lab['url']}/lab/workspaces/frf-views/tree/{name}?token={lab['token']}&reset")
     pg.wait_for_function("() => !!window.jupyterapp", timeout=TIMEOUT)
     pg.wait_for_function(KERNEL_IDLE, timeout=TIMEOUT)
     pg.evaluate("() => window.jupyterapp.commands.execute('notebook:run-all-cells')")

@@ -141,7 +141,7 @@ class Notebook:
 def nb(lab, browser):
     page = browser.new_page()
     t0 = time.monotonic()
-    page.goto(f"{lab['url']}/lab/tree/quickstart.ipynb?token={lab['token']}")
+    page.goto(f"{lab['url']}/lab/workspaces/quickstart/tree/quickstart.ipynb?token={lab['token']}&reset")
     page.wait_for_function("() => !!window.jupyterapp", timeout=TIMEOUT)
     page.wait_for_function(KERNEL_IDLE, timeout=TIMEOUT)
     _timed("page load to idle kernel", t0)

@@ -23,7 +23,7 @@ GD = "document.querySelector('.modalnb-shape-figure .js-plotly-plot')"
 @pytest.fixture(scope="module")
 def nb(lab, browser):
     page = browser.new_page()
-    page.goto(f"{lab['url']}/lab/tree/roving_hammer.ipynb?token={lab['token']}")
+    page.goto(f"{lab['url']}/lab/workspaces/roving/tree/roving_hammer.ipynb?token={lab['token']}&reset")
     page.wait_for_function("() => !!window.jupyterapp", timeout=TIMEOUT)
     page.wait_for_function(KERNEL_IDLE, timeout=TIMEOUT)
     yield Notebook(page, lab)
