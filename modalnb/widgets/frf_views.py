@@ -29,7 +29,7 @@ from .._errors import ModalnbError
 from .._numbers import format_quantity
 from ..frf_compare import frf_label
 from ..session import Analysis
-from ._base import esc, fig_box, figure, table_html
+from ._base import LEGEND_BELOW, LEGEND_MARGIN, esc, fig_box, figure, table_html
 
 __all__ = ["CoherenceView", "FrfCheckView", "ModelPairingView", "model_pairing", "display_index"]
 
@@ -191,9 +191,9 @@ class FrfCheckView(_View):
         self.fig = go.FigureWidget(make_subplots(
             rows=2, cols=1, shared_xaxes=True, vertical_spacing=0.1,
             subplot_titles=("magnitude", "phase")))
-        self.fig.update_layout(height=480, template="plotly_white",
-                               margin={"l": 60, "r": 20, "t": 50, "b": 40},
-                               legend={"orientation": "h", "y": 1.12, "x": 1, "xanchor": "right"})
+        self.fig.update_layout(height=480, template="plotly_white", autosize=True,
+                               margin={"l": 60, "r": 20, "t": 50, "b": LEGEND_MARGIN},
+                               legend=LEGEND_BELOW)
         for name, colour, row, legend in (("measured", PALETTE.measured, 1, True),
                                           ("model", PALETTE.model, 1, True),
                                           ("measured phase", PALETTE.measured, 2, False),
