@@ -8,32 +8,18 @@ Playwright is a test dependency (imported directly: missing, this module fails).
 from __future__ import annotations
 
 import os
-import shutil
 import tempfile
 
 import numpy as np
 import pytest
 import xarray as xr
-from playwright import sync_api
+from offline_browser import offline_page
 from plotly.offline import get_plotlyjs
 
 from modalnb import records_from_arrays
 from modalnb._display import PALETTE
 from modalnb.export import report_html
 from modalnb.testing.synth import free_decay
-
-CHROMIUM = shutil.which("chromium")
-ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-        "--disable-background-networking", "--disable-component-update", "--disable-sync",
-        "--disable-dev-shm-usage"]
-
-
-def _chromium_or_skip() -> None:
-    if CHROMIUM is None:
-        if os.environ.get("MODALNB_REQUIRE_BROWSER") == "1":
-            pytest.fail("MODALNB_REQUIRE_BROWSER=1 but no `chromium` on PATH (apt-get install chromium)")
-        pytest.skip("no `chromium` on PATH (Debian package chromium); browser checks skipped")
-
 
 EVIL = "<script>alert(1)</script>"
 
@@ -73,37 +59,18 @@ def test_report_escapes_text():
 
 @pytest.mark.browser
 def test_report_renders_offline_in_chromium():
-    _chromium_or_skip()
     ds, result, model = _case()
     tmp = tempfile.mkdtemp()
     path = os.path.join(tmp, "report.html")
     with open(path, "w", encoding="utf-8") as fh:
         fh.write(report_html(ds, result, model=model, title="offline check"))
-    external, dialogs, errors = [], [], []
-    with sync_api.sync_playwright() as p:
-        ctx = p.chromium.launch_persistent_context(tempfile.mkdtemp(), executable_path=CHROMIUM,
-                                                   headless=True, args=ARGS)
-        try:
-            def route(r):
-                if r.request.url.startswith("file://"):
-                    r.continue_()
-                else:
-                    external.append(r.request.url)
-                    r.abort()
-
-            ctx.route("**/*", route)
-            page = ctx.new_page()
-            page.on("dialog", lambda d: (dialogs.append(d.message), d.dismiss()))
-            page.on("pageerror", lambda e: errors.append(str(e)))
-            page.goto("file://" + path)
-            page.wait_for_selector(".js-plotly-plot .main-svg", timeout=30000)
-            n_plots = page.locator(".js-plotly-plot").count()
-            n_lines = page.locator(".js-plotly-plot path.js-line").count()
-            cell = page.locator("table.shapes td", has_text="alert(1)").first.inner_text()
-            page.screenshot(path=os.path.join(tmp, "report.png"), full_page=False)
-        finally:
-            ctx.close()
-    assert external == []  # works offline: no request left the file
-    assert dialogs == [] and errors == []  # the channel name did not run as script
+    with offline_page("file://" + path, wait_for=".js-plotly-plot .main-svg") as op:
+        page = op.page
+        n_plots = page.locator(".js-plotly-plot").count()
+        n_lines = page.locator(".js-plotly-plot path.js-line").count()
+        cell = page.locator("table.shapes td", has_text="alert(1)").first.inner_text()
+        page.screenshot(path=os.path.join(tmp, "report.png"), full_page=False)
+    assert op.external == []  # works offline: no request left the file
+    assert op.dialogs == [] and op.errors == []  # the channel name did not run as script
     assert n_plots >= 3 and n_lines >= 3  # spectra, force and traces drawn with data
     assert cell == EVIL  # shown as text

@@ -10,14 +10,13 @@ from __future__ import annotations
 import json
 import os
 import re
-import shutil
 import tempfile
 import time
 
 import numpy as np
 import pytest
 import xarray as xr
-from playwright import sync_api
+from offline_browser import offline_page
 from plotly.offline import get_plotlyjs
 
 from modalnb.export.shape_view import (
@@ -29,10 +28,6 @@ from modalnb.export.shape_view import (
 from modalnb.geometry import Geometry, NodesPlacedWarning
 
 EVIL = "<img src=x onerror=alert(1)>"
-CHROMIUM = shutil.which("chromium")
-ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-        "--disable-background-networking", "--disable-component-update", "--disable-sync",
-        "--disable-dev-shm-usage"]
 
 
 def _table():
@@ -87,64 +82,38 @@ def test_hit_nodes_without_position_are_named_under_the_view():
     assert "C" in placed and "&lt;img src=x onerror=alert(1)&gt;" in placed
 
 
-def _chromium_or_skip() -> None:
-    if CHROMIUM is None:
-        if os.environ.get("MODALNB_REQUIRE_BROWSER") == "1":
-            pytest.fail("MODALNB_REQUIRE_BROWSER=1 but no `chromium` on PATH (apt-get install chromium)")
-        pytest.skip("no `chromium` on PATH (Debian package chromium); browser checks skipped")
-
-
 @pytest.mark.browser
 def test_view_plays_pauses_and_rescales_offline_in_chromium():
-    _chromium_or_skip()
     tmp = tempfile.mkdtemp()
     path = os.path.join(tmp, "shape_view.html")
     with open(path, "w", encoding="utf-8") as fh:
         fh.write(shape_view_html(None, _table(), _geometry()))
-    external, dialogs, errors = [], [], []
-    with sync_api.sync_playwright() as p:
-        ctx = p.chromium.launch_persistent_context(tempfile.mkdtemp(), executable_path=CHROMIUM,
-                                                   headless=True, args=ARGS)
-        try:
-            def route(r):
-                if r.request.url.startswith("file://"):
-                    r.continue_()
-                else:
-                    external.append(r.request.url)
-                    r.abort()
+    with offline_page("file://" + path, wait_for='section[data-ready="yes"]') as op:
+        page = op.page
 
-            ctx.route("**/*", route)
-            page = ctx.new_page()
-            page.on("dialog", lambda d: (dialogs.append(d.message), d.dismiss()))
-            page.on("pageerror", lambda e: errors.append(str(e)))
-            page.goto("file://" + path)
-            page.wait_for_selector('section[data-ready="yes"]', timeout=30000)
+        def node_b_z() -> float:
+            return page.evaluate("document.getElementById('modalnb-shape-view').data[3].z[0]")
 
-            def node_b_z() -> float:
-                return page.evaluate("document.getElementById('modalnb-shape-view').data[3].z[0]")
-
-            frames = set()
-            for _ in range(10):
-                frames.add(page.get_attribute("section", "data-frame"))
-                time.sleep(0.05)
-            assert len(frames) > 2  # playing: the frame moves on
-            page.click(".modalnb-shape-play")
-            assert page.get_attribute("section", "data-playing") == "no"
-            k = int(page.get_attribute("section", "data-frame"))
-            time.sleep(0.3)
-            assert int(page.get_attribute("section", "data-frame")) == k  # paused
-            theta = 2 * np.pi * k / FRAMES_PER_CYCLE
-            z1 = node_b_z()
-            page.fill(".modalnb-shape-amplitude", "2")
-            page.dispatch_event(".modalnb-shape-amplitude", "input")
-            z2 = node_b_z()
-            page.select_option(".modalnb-shape-mode", "1")
-            title = page.evaluate("document.getElementById('modalnb-shape-view').layout.title.text")
-            still = page.evaluate("Array.from(document.getElementById('modalnb-shape-view').data[1].text)")
-            moving = page.evaluate("Array.from(document.getElementById('modalnb-shape-view').data[3].text)")
-        finally:
-            ctx.close()
-    assert external == [] and dialogs == [] and errors == []
+        frames = set()
+        for _ in range(10):
+            frames.add(page.get_attribute("section", "data-frame"))
+            time.sleep(0.05)
+        assert len(frames) > 2  # playing: the frame moves on
+        page.click(".modalnb-shape-play")
+        assert page.get_attribute("section", "data-playing") == "no"
+        k = int(page.get_attribute("section", "data-frame"))
+        time.sleep(0.3)
+        assert int(page.get_attribute("section", "data-frame")) == k  # paused
+        theta = 2 * np.pi * k / FRAMES_PER_CYCLE
+        z1 = node_b_z()
+        page.fill(".modalnb-shape-amplitude", "2")
+        page.dispatch_event(".modalnb-shape-amplitude", "input")
+        z2 = node_b_z()
+        page.select_option(".modalnb-shape-mode", "1")
+        title = page.evaluate("document.getElementById('modalnb-shape-view').layout.title.text")
+        still = page.evaluate("Array.from(document.getElementById('modalnb-shape-view').data[1].text)")
+        moving = page.evaluate("Array.from(document.getElementById('modalnb-shape-view').data[3].text)")
+    assert op.external == [] and op.dialogs == [] and op.errors == []
     # node B: z = s Re(e^{j(90 deg + theta)}) = -s sin(theta); doubling the amplitude doubles it
     if abs(np.sin(theta)) > 1e-6:
         assert z2 == pytest.approx(2 * z1, rel=1e-9)
