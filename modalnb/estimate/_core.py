@@ -83,6 +83,11 @@ COLD_STD_TOL = 0.01
 #: a limit is left unconverged (common practice).
 CLEARLY_NOT_A_MODE = 3.0
 
+#: The same for a warm start (a refit, a fast preview), without a margin: a pole the
+#: table would set aside at the look is not waited for (its decision may flip in a fresh
+#: fit, which a refit's documentation allows).
+WARM_NOT_A_MODE = 1.0
+
 MAX_MODEL_ITER = 60
 MAX_TOTAL_ITER = 180
 
@@ -224,12 +229,13 @@ def _valid(prob: Problem, x: np.ndarray, fs: float) -> np.ndarray:
 
 
 def _not_clearly_aside(prob: Problem, x: np.ndarray, rss: float, n_tot: int, n_lin: int,
-                       signif: np.ndarray, thr: float, t_len: float) -> np.ndarray | None:
+                       signif: np.ndarray, thr: float, t_len: float,
+                       factor: float = 3.0) -> np.ndarray | None:
     """Mask over the packed parameters of the poles that may be modes (None: all may be).
 
-    A pole is clearly not a mode when its energy is below the table's limit by
-    :data:`CLEARLY_NOT_A_MODE` or its frequency standard deviation above the table's limit
-    by that factor (the rules of :func:`._select._select_modes`, with a margin).
+    A pole is clearly not a mode when its energy is below the table's limit by `factor`
+    or its frequency standard deviation above the table's limit by `factor` (the rules
+    of :func:`._select._select_modes`, with a margin).
     """
     from ._select import ENERGY_FACTOR, frequency_std_limit
 
@@ -239,8 +245,8 @@ def _not_clearly_aside(prob: Problem, x: np.ndarray, rss: float, n_tot: int, n_l
     aside = np.zeros(fn.size, bool)
     for k in range(fn.size):
         lim = frequency_std_limit(fn[k], t_len) if np.isfinite(fn[k]) else 0.0
-        aside[k] = (signif[k] < e_min / CLEARLY_NOT_A_MODE
-                    or not np.isfinite(fn_std[k]) or fn_std[k] > CLEARLY_NOT_A_MODE * lim)
+        aside[k] = (signif[k] < e_min / factor
+                    or not np.isfinite(fn_std[k]) or fn_std[k] > factor * lim)
     if not aside.any() or aside.all():
         return None
     return np.repeat(~aside, 2)
@@ -320,7 +326,7 @@ def fit_core(
         round_iter = WARM_ROUND_ITER if warm and rounds == 1 else ROUND_ITER
         budget = min(round_iter, MAX_MODEL_ITER - model_iter, MAX_TOTAL_ITER - total_iter)
         if warm:
-            std_tol, watch = WARM_STD_TOL, None
+            std_tol = WARM_STD_TOL
         elif watch is not None:
             std_tol = COLD_STD_TOL
         else:
@@ -358,9 +364,9 @@ def fit_core(
                               for f in fn_now])
             weak &= ~asked
         out_of_budget = total_iter >= MAX_TOTAL_ITER or pruned >= MAX_PRUNE_ROUNDS
+        watch = _not_clearly_aside(prob, x, rss, n_tot, n_lin, signif, thr, t_len,
+                                   WARM_NOT_A_MODE if warm else CLEARLY_NOT_A_MODE)
         if not drop.any() and not weak.any():
-            if not warm:
-                watch = _not_clearly_aside(prob, x, rss, n_tot, n_lin, signif, thr, t_len)
             if stopped or model_iter >= MAX_MODEL_ITER or out_of_budget:
                 converged = stopped
                 break
@@ -383,7 +389,10 @@ def fit_core(
             )
         idx = np.repeat(np.nonzero(keep)[0] * 2, 2) + np.tile([0, 1], int(keep.sum()))
         x = x[idx]
-        watch = None  # a new model: every pole converges until the next look
+        if watch is not None:  # the look's verdicts on the poles kept
+            watch = watch[idx]
+            if watch.all() or not watch.any():
+                watch = None
         pruned += 1
         model_iter = 0
         if out_of_budget:
