@@ -275,3 +275,37 @@ def test_cross_check_band_pass_is_scipys_butterworth() -> None:
         np.testing.assert_allclose(h1, h0, atol=1e-10)
         y0, y1 = sosfiltfilt(ref, x), sosfiltfilt(ours, x)
         np.testing.assert_allclose(y1, y0, atol=1e-9 * np.abs(y0).max())
+
+
+def test_step_in_std_matches_a_finite_difference_gauss_newton_step():
+    """step_in_std against a Gauss-Newton step and covariance built independently from a
+    central finite-difference Jacobian of the projected residual (noise-free-ish data:
+    Kaufman's Jacobian is then the full one to first order; Golub & Pereyra 1973)."""
+    from modalnb.estimate._varpro import Problem, step_in_std
+
+    rng = np.random.default_rng(3)
+    fs = 1000.0
+    t = np.arange(2000) / fs
+    y = np.exp(-3.0 * t) * np.cos(2 * np.pi * 40.0 * t) + 1e-3 * rng.standard_normal(t.size)
+    prob = Problem(np.ascontiguousarray(y[:, None]), t, 2 * np.pi * fs / 10)
+    x = prob.pack([3.05], [(2 * np.pi * 40.02) ** 2])
+    r = prob.residual(x)
+    jac = np.empty((r.size, x.size))
+    for j in range(x.size):
+        h = 1e-6 * max(abs(x[j]), 1e-3)
+        xp, xm = x.copy(), x.copy()
+        xp[j] += h
+        xm[j] -= h
+        jac[:, j] = (prob.residual(xp) - prob.residual(xm)) / (2 * h)
+    jtj = jac.T @ jac
+    dx = -np.linalg.solve(jtj, jac.T @ r)
+    n_dof = r.size - 1 * (x.size + prob.n_extra) - x.size
+    std = np.sqrt(np.diag(np.linalg.inv(jtj)) * float(r @ r) / n_dof)
+    expected = float(np.max(np.abs(dx) / std))
+    jtj_k, g_k = prob.kaufman_normal(x, r)
+    got = step_in_std(prob, jtj_k, g_k, float(r @ r))
+    assert expected > 1.0  # the start is several standard deviations off
+    assert got == pytest.approx(expected, rel=0.05)
+    # the mask keeps only the watched parameters
+    only_u = step_in_std(prob, jtj_k, g_k, float(r @ r), np.array([False, True]))
+    assert only_u == pytest.approx(float(np.abs(dx[1]) / std[1]), rel=0.05)

@@ -58,6 +58,36 @@ WARM_ROUND_ITER = 4
 #: bounded whatever the data (a misfit window that drops one mode per round ends after at
 #: most this many normal-matrix builds); a fit stopped by a budget says so in
 #: ``CoreResult.converged`` (common practice: a well-posed fit converges in a few dozen).
+#: Convergence of a warm start (a refit, a fast preview): Levenberg-Marquardt stops when
+#: no pole parameter's Gauss-Newton step reaches this fraction of its standard deviation
+#: (:func:`._varpro.step_in_std`). The relative offset (an RMS over all parameters) is
+#: dominated by a mode near the noise limit, which converges slowly (linearly) while the
+#: well-determined modes moved by less than 1e-3 of a standard deviation after one or two
+#: iterations; 0.05 is far below one standard deviation (common practice for a
+#: statistical stopping rule; the cold fit keeps the relative offset alone).
+WARM_STD_TOL = 0.05
+
+#: Convergence of a cold fit once some poles are clearly not modes: Levenberg-Marquardt
+#: stops when no parameter of the other poles has a Gauss-Newton step of this fraction
+#: of its standard deviation (the joint step, so how the set-aside poles would still move
+#: is accounted for). Poles that the table will set aside as residual terms (too weak or
+#: frequency not determined, :mod:`._select`) wander slowly through the noise for dozens
+#: of iterations while the modes moved by less than 1 % of a standard deviation (bias
+#: that small adds 1e-4 of the variance: far inside the accuracy targets).
+COLD_STD_TOL = 0.01
+
+#: A pole is "clearly not a mode" (its convergence is not waited for) when its energy is
+#: below the table's energy limit (``ENERGY_FACTOR`` times the significance limit) by
+#: this factor, or its frequency standard deviation exceeds the table's limit
+#: (:func:`._select.frequency_std_limit`) by this factor: a margin so that no pole near
+#: a limit is left unconverged (common practice).
+CLEARLY_NOT_A_MODE = 3.0
+
+#: The same for a warm start (a refit, a fast preview), without a margin: a pole the
+#: table would set aside at the look is not waited for (its decision may flip in a fresh
+#: fit, which a refit's documentation allows).
+WARM_NOT_A_MODE = 1.0
+
 MAX_MODEL_ITER = 60
 MAX_TOTAL_ITER = 180
 
@@ -198,6 +228,30 @@ def _valid(prob: Problem, x: np.ndarray, fs: float) -> np.ndarray:
     return ok
 
 
+def _not_clearly_aside(prob: Problem, x: np.ndarray, rss: float, n_tot: int, n_lin: int,
+                       signif: np.ndarray, thr: float, t_len: float,
+                       factor: float = 3.0) -> np.ndarray | None:
+    """Mask over the packed parameters of the poles that may be modes (None: all may be).
+
+    A pole is clearly not a mode when its energy is below the table's limit by `factor`
+    or its frequency standard deviation above the table's limit by `factor` (the rules
+    of :func:`._select._select_modes`, with a margin).
+    """
+    from ._select import ENERGY_FACTOR, frequency_std_limit
+
+    cov = covariance(prob, x, rss, n_tot, n_lin)
+    fn, _, fn_std, _ = natural_with_cov(prob, x, cov)
+    e_min = ENERGY_FACTOR * thr
+    aside = np.zeros(fn.size, bool)
+    for k in range(fn.size):
+        lim = frequency_std_limit(fn[k], t_len) if np.isfinite(fn[k]) else 0.0
+        aside[k] = (signif[k] < e_min / factor
+                    or not np.isfinite(fn_std[k]) or fn_std[k] > factor * lim)
+    if not aside.any() or aside.all():
+        return None
+    return np.repeat(~aside, 2)
+
+
 def fit_core(
     y: np.ndarray,
     t: np.ndarray,
@@ -223,7 +277,9 @@ def fit_core(
     of a frequency in `protect_hz` (``ASKED_TOL``) is never dropped as weak (the user
     asked for it). The final refinement runs only when the prune loop ended on its
     iteration budget: after convergence to Bates & Watts' relative offset
-    (:data:`._varpro.RELATIVE_OFFSET_TOL`), and always with `defer_polish` (refits), the
+    (:data:`._varpro.RELATIVE_OFFSET_TOL`), or of every pole that may be a mode to
+    :data:`COLD_STD_TOL` of its standard deviation (a warm start: :data:`WARM_STD_TOL`
+    for every pole), and always with `defer_polish` (refits), the
     table keeps the Levenberg-Marquardt point and ``minimizer`` runs the refinement when
     its lmfit report is asked.
     """
@@ -260,6 +316,8 @@ def fit_core(
     rounds = 0
     converged = False
     warm = pencil is None
+    watch = None  # parameters whose convergence is waited for (None: all)
+    t_len = float(t[-1] - t[0]) + 1.0 / fs
     while True:
         rounds += 1
         # a look at the modes every ROUND_ITER iterations (early rounds only need to
@@ -267,7 +325,14 @@ def fit_core(
         # over the whole loop
         round_iter = WARM_ROUND_ITER if warm and rounds == 1 else ROUND_ITER
         budget = min(round_iter, MAX_MODEL_ITER - model_iter, MAX_TOTAL_ITER - total_iter)
-        x, its = levenberg_marquardt(prob, x, max_iter=max(budget, 0))
+        if warm:
+            std_tol = WARM_STD_TOL
+        elif watch is not None:
+            std_tol = COLD_STD_TOL
+        else:
+            std_tol = None
+        x, its = levenberg_marquardt(prob, x, max_iter=max(budget, 0), std_tol=std_tol,
+                                     watch=watch)
         model_iter += its
         total_iter += its
         stopped = its < budget  # on a convergence criterion, not on the budget
@@ -299,6 +364,8 @@ def fit_core(
                               for f in fn_now])
             weak &= ~asked
         out_of_budget = total_iter >= MAX_TOTAL_ITER or pruned >= MAX_PRUNE_ROUNDS
+        watch = _not_clearly_aside(prob, x, rss, n_tot, n_lin, signif, thr, t_len,
+                                   WARM_NOT_A_MODE if warm else CLEARLY_NOT_A_MODE)
         if not drop.any() and not weak.any():
             if stopped or model_iter >= MAX_MODEL_ITER or out_of_budget:
                 converged = stopped
@@ -322,6 +389,10 @@ def fit_core(
             )
         idx = np.repeat(np.nonzero(keep)[0] * 2, 2) + np.tile([0, 1], int(keep.sum()))
         x = x[idx]
+        if watch is not None:  # the look's verdicts on the poles kept
+            watch = watch[idx]
+            if watch.all() or not watch.any():
+                watch = None
         pruned += 1
         model_iter = 0
         if out_of_budget:

@@ -716,11 +716,11 @@ class SharedPoleFit:
         for i, k in enumerate(sel):
             self._mode_row(i, k, records, prep, core, coef, asked, use_force, sign,
                            (scat_f, scat_z), cols, per_mode)
-        ds = self._dataset(records, prep, cols, per_mode, fit_r2, use_force)
-        ds = ds.assign(_aside_variables(core, aside))
-        ds["residual_noise_ratio"] = ("channel", noise_ratio, {
+        extra = _aside_variables(core, aside)
+        extra["residual_noise_ratio"] = ("channel", noise_ratio, {
             "description": "residual RMS over the pre-trigger noise (NaN without pre-trigger "
                            "noise); about 1 when the model fits"})
+        ds = self._dataset(records, prep, cols, per_mode, fit_r2, use_force, extra)
         settings = self._settings(prep, core, band, window, asked, dropped, cols)
         settings["fit_quality"] = {k: v for k, v in quality.items() if k != "note"}
         settings["fit_quality"]["note"] = quality["note"] or "ok"
@@ -793,7 +793,8 @@ class SharedPoleFit:
 
     @staticmethod
     def _dataset(records: xr.Dataset, prep: _Prepared, cols: dict[str, np.ndarray],
-                 per_mode: dict[str, Any], fit_r2: np.ndarray, use_force: bool) -> xr.Dataset:
+                 per_mode: dict[str, Any], fit_r2: np.ndarray, use_force: bool,
+                 more: dict[str, Any]) -> xr.Dataset:
         # variables collected first and the Dataset built once (one merge, not one per variable)
         m = len(per_mode["status"])
         coords: dict[str, Any] = {"mode": np.arange(1, m + 1), "channel": prep.channels,
@@ -822,6 +823,7 @@ class SharedPoleFit:
             ["ok" if lv else "dead channel (constant in the window): left out of the pole fit"
              for lv in prep.live], dtype=object))
         dv["hit_accepted"] = ("hit", prep.accepted)
+        dv.update(more)
         return xr.Dataset(dv, coords=coords)
 
     def _settings(self, prep: _Prepared, core: CoreResult, band: tuple[float, float],
