@@ -14,30 +14,15 @@ import csv
 import json
 import re
 import time
-import urllib.request
 
 import numpy as np
 import pytest
+from lab_notebook import ALL_RUN, TIMEOUT, open_notebook, shut_down_sessions
 
 from modalnb.demo import load_demo_truth
 
 pytestmark = pytest.mark.browser
 
-TIMEOUT = 90_000  # ms
-
-KERNEL_IDLE = """() => {
-  const w = window.jupyterapp.shell.currentWidget;
-  return !!(w && w.sessionContext && w.sessionContext.session && w.sessionContext.session.kernel
-            && w.sessionContext.session.kernel.status === 'idle');
-}"""
-
-ALL_RUN = """() => {
-  const w = window.jupyterapp.shell.currentWidget;
-  if (!w || !w.sessionContext || !w.sessionContext.session || !w.sessionContext.session.kernel) return false;
-  if (w.sessionContext.session.kernel.status !== 'idle') return false;
-  const prompts = [...document.querySelectorAll('.jp-CodeCell .jp-InputPrompt')].map(p => p.textContent);
-  return prompts.length > 0 && prompts.every(t => /\\[\\d+\\]/.test(t));
-}"""
 
 LINE_DRAWN = """([css, segments]) => [...document.querySelectorAll('.' + css + ' path.js-line')]
   .filter(p => (p.getAttribute('d') || '').split('L').length > segments).length"""
@@ -77,23 +62,14 @@ def _notebook(root) -> str:
 @pytest.fixture(scope="module")
 def page(lab, browser):
     name = _notebook(lab["root"])
-    pg = browser.new_page()
     t0 = time.monotonic()
-    pg.goto(f"{lab['url']}/lab/workspaces/frf-views/tree/{name}?token={lab['token']}&reset")
-    pg.wait_for_function("() => !!window.jupyterapp", timeout=TIMEOUT)
-    pg.wait_for_function(KERNEL_IDLE, timeout=TIMEOUT)
+    pg = open_notebook(lab, browser, name, "frf-views")
     pg.evaluate("() => window.jupyterapp.commands.execute('notebook:run-all-cells')")
     pg.wait_for_function(ALL_RUN, timeout=TIMEOUT)
     pg.wait_for_selector(".modalnb-desk", timeout=TIMEOUT)
     print(f"[timing] page load + run all: {time.monotonic() - t0:.2f} s")
     yield pg
-    req = urllib.request.Request(f"{lab['url']}/api/sessions?token={lab['token']}")
-    with urllib.request.urlopen(req, timeout=10) as r:
-        sessions = json.load(r)
-    for s in sessions:
-        if s.get("path", "").endswith(name):
-            urllib.request.urlopen(urllib.request.Request(
-                f"{lab['url']}/api/sessions/{s['id']}?token={lab['token']}", method="DELETE"), timeout=10)
+    shut_down_sessions(lab, name)
     pg.close()
 
 

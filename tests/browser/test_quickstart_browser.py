@@ -14,44 +14,16 @@ output. Timings are printed (never asserted).
 from __future__ import annotations
 
 import csv
-import json
 import re
 import time
-import urllib.request
 
 import pytest
+from lab_notebook import KERNEL_IDLE, TIMEOUT, notebook_page
 from playwright.sync_api import TimeoutError as PlaywrightTimeout
 
 from modalnb.demo import load_demo_truth
 
 pytestmark = pytest.mark.browser
-
-TIMEOUT = 90_000  # ms, for steps that run the notebook
-
-KERNEL_EXEC = """async (code) => {
-  const k = window.jupyterapp.shell.currentWidget.sessionContext.session.kernel;
-  const f = k.requestExecute({code: code, silent: false, store_history: false});
-  let out = '';
-  f.onIOPub = (msg) => { if (msg.header.msg_type === 'stream') out += msg.content.text;
-                         if (msg.header.msg_type === 'error') out += 'ERROR ' + msg.content.evalue; };
-  await f.done;
-  return out;
-}"""
-
-KERNEL_IDLE = """() => {
-  const w = window.jupyterapp.shell.currentWidget;
-  return !!(w && w.sessionContext && w.sessionContext.session && w.sessionContext.session.kernel
-            && w.sessionContext.session.kernel.status === 'idle');
-}"""
-
-ALL_RUN = """() => {
-  const w = window.jupyterapp.shell.currentWidget;
-  if (!w || !w.sessionContext || !w.sessionContext.session || !w.sessionContext.session.kernel) return false;
-  if (w.sessionContext.session.kernel.status !== 'idle') return false;
-  const prompts = [...document.querySelectorAll('.jp-CodeCell .jp-InputPrompt')].map(p => p.textContent);
-  return prompts.length > 0 && prompts.every(t => /\\[\\d+\\]/.test(t));
-}"""
-
 
 #: Every element of the visible tab whose text a cut would hide, and how much it is cut:
 #: labels, buttons and toggles cut their text with an ellipsis (scrollWidth > clientWidth);
@@ -105,58 +77,14 @@ def _timed(label: str, t0: float) -> None:
     print(f"[timing] {label}: {time.monotonic() - t0:.2f} s")
 
 
-class Notebook:
-    def __init__(self, page, lab):
-        self.page, self.lab = page, lab
-
-    def py(self, code: str) -> str:
-        return self.page.evaluate(KERNEL_EXEC, code)
-
-    def run_all(self) -> None:
-        self.page.evaluate("() => window.jupyterapp.commands.execute('notebook:run-all-cells')")
-        # wait until this run started (a prompt shows [*]) then until every cell has a number
-        try:
-            self.page.wait_for_function(
-                "() => [...document.querySelectorAll('.jp-CodeCell .jp-InputPrompt')]"
-                ".some(p => p.textContent.includes('*'))", timeout=10_000)
-        except PlaywrightTimeout:  # a very fast run may finish before we look
-            pass
-        self.page.wait_for_function(ALL_RUN, timeout=TIMEOUT)
-        self.page.wait_for_selector(".modalnb-desk", timeout=TIMEOUT)
-
-    def tab(self, name: str) -> None:
-        self.page.locator(".modalnb-desk-tabs .lm-TabBar-tab", has_text=name).click()
-
-    def text(self, selector: str) -> str:
-        return self.page.locator(selector).first.text_content() or ""
-
-    def errors(self) -> list[str]:
-        return self.page.evaluate("""() => [
-          ...document.querySelectorAll('.jp-OutputArea-output[data-mime-type="application/vnd.jupyter.stderr"]'),
-          ...document.querySelectorAll('.modalnb-error')].map(e => e.textContent)
-          .concat(document.body.innerText.includes('Error displaying widget') ? ['widget error'] : [])""")
-
-
 @pytest.fixture(scope="module")
 def nb(lab, browser):
-    page = browser.new_page()
     t0 = time.monotonic()
-    page.goto(f"{lab['url']}/lab/workspaces/quickstart/tree/quickstart.ipynb?token={lab['token']}&reset")
-    page.wait_for_function("() => !!window.jupyterapp", timeout=TIMEOUT)
-    page.wait_for_function(KERNEL_IDLE, timeout=TIMEOUT)
-    _timed("page load to idle kernel", t0)
-    page.evaluate("() => window.jupyterapp.shell.collapseLeft()")  # the side bar collapsed
-    page.evaluate("() => window.jupyterapp.shell.collapseRight()")
-    n = Notebook(page, lab)
-    yield n
-    # kernels outlive the page: shut the sessions down
-    req = urllib.request.Request(f"{lab['url']}/api/sessions?token={lab['token']}")
-    with urllib.request.urlopen(req, timeout=10) as r:
-        sessions = json.load(r)
-    for s in sessions:
-        urllib.request.urlopen(urllib.request.Request(
-            f"{lab['url']}/api/sessions/{s['id']}?token={lab['token']}", method="DELETE"), timeout=10)
-    page.close()
+    for n in notebook_page(lab, browser, "quickstart.ipynb", "quickstart"):
+        _timed("page load to idle kernel", t0)
+        n.page.evaluate("() => window.jupyterapp.shell.collapseLeft()")  # the side bar collapsed
+        n.page.evaluate("() => window.jupyterapp.shell.collapseRight()")
+        yield n
 
 
 def test_run_all_renders_figures_and_mode1(nb, shoot):

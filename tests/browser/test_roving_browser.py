@@ -10,10 +10,9 @@ from __future__ import annotations
 
 import json
 import time
-import urllib.request
 
 import pytest
-from test_quickstart_browser import KERNEL_IDLE, TIMEOUT, Notebook
+from lab_notebook import notebook_page
 
 pytestmark = pytest.mark.browser
 
@@ -22,18 +21,7 @@ GD = "document.querySelector('.modalnb-shape-figure .js-plotly-plot')"
 
 @pytest.fixture(scope="module")
 def nb(lab, browser):
-    page = browser.new_page()
-    page.goto(f"{lab['url']}/lab/workspaces/roving/tree/roving_hammer.ipynb?token={lab['token']}&reset")
-    page.wait_for_function("() => !!window.jupyterapp", timeout=TIMEOUT)
-    page.wait_for_function(KERNEL_IDLE, timeout=TIMEOUT)
-    yield Notebook(page, lab)
-    req = urllib.request.Request(f"{lab['url']}/api/sessions?token={lab['token']}")
-    with urllib.request.urlopen(req, timeout=10) as r:
-        sessions = json.load(r)
-    for s in sessions:
-        urllib.request.urlopen(urllib.request.Request(
-            f"{lab['url']}/api/sessions/{s['id']}?token={lab['token']}", method="DELETE"), timeout=10)
-    page.close()
+    yield from notebook_page(lab, browser, "roving_hammer.ipynb", "roving")
 
 
 def test_the_shape_moves_on_the_frame(nb, shoot):
