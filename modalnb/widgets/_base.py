@@ -29,7 +29,7 @@ from .._display import PALETTE
 from .._numbers import split_quantity, split_with_uncertainty
 from ..session import Analysis
 
-__all__ = ["Panel", "esc", "fmt", "number", "with_u", "figure", "fig_box", "table_html",
+__all__ = ["Panel", "esc", "fmt", "number", "with_u", "figure", "stacked_figure", "fig_box", "table_html",
            "mode_rows", "mode_cells", "PANEL_STYLE", "side_by_side"]
 
 #: What a cell shows for a number that is not there (NaN, None).
@@ -168,6 +168,29 @@ def figure(height: int = 320, **layout: Any) -> go.FigureWidget:
                       colorway=list(PALETTE.series), **layout)
     if title is not None:
         fig.update_layout(title={"text": title, "x": 0.01, "xanchor": "left", "font": {"size": 14}})
+    return fig
+
+
+def stacked_figure(titles: tuple[str, ...], traces: Any, height: int, *,
+                   spacing: float = 0.1, shared_xaxes: bool = False) -> go.FigureWidget:
+    """Subplots one above the other in modalnb's look (legend below, autosized to its box),
+    with empty line traces ``(name, colour, row, in_legend)`` to be filled by the view.
+
+    Examples
+    --------
+    >>> fig = stacked_figure(("a", "b"), [("x", PALETTE.measured, 1, True)], 300)
+    >>> len(fig.data), fig.layout.height
+    (1, 300)
+    """
+    from plotly.subplots import make_subplots
+
+    fig = go.FigureWidget(make_subplots(rows=len(titles), cols=1, vertical_spacing=spacing,
+                                        shared_xaxes=shared_xaxes, subplot_titles=titles))
+    fig.update_layout(height=height, template="plotly_white", autosize=True,
+                      margin={"l": 60, "r": 20, "t": 40, "b": LEGEND_MARGIN}, legend=LEGEND_BELOW)
+    for name, colour, row, legend in traces:
+        fig.add_scatter(x=[], y=[], mode="lines", name=name, showlegend=legend,
+                        line={"color": colour, "width": 1}, row=row, col=1)
     return fig
 
 

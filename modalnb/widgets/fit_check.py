@@ -5,12 +5,10 @@ from __future__ import annotations
 
 import ipywidgets as w
 import numpy as np
-import plotly.graph_objects as go
-from plotly.subplots import make_subplots
 
 from .._display import PALETTE, decimate_for_display
 from ..session import Analysis
-from ._base import LEGEND_BELOW, LEGEND_MARGIN, Panel, esc, fig_box, number, table_html
+from ._base import Panel, esc, fig_box, number, stacked_figure, table_html
 from .frf_views import FrfCheckView
 
 __all__ = ["FitPanel"]
@@ -43,20 +41,13 @@ class FitPanel(Panel):
                                   **narrow)
         self.hit.observe(lambda ch: self.refresh(), "value")
         self.channel.observe(lambda ch: self.refresh(), "value")
-        self.fig = go.FigureWidget(make_subplots(
-            rows=3, cols=1, vertical_spacing=0.15,
-            subplot_titles=("measured and model in the fit window", "residual (measured − model)",
-                            "spectra: measured and residual")))
-        self.fig.update_layout(height=700, template="plotly_white", autosize=True,
-                               margin={"l": 60, "r": 20, "t": 40, "b": LEGEND_MARGIN},
-                               legend=LEGEND_BELOW)
-        for name, colour, row, legend in (("measured", PALETTE.measured, 1, True),
-                                          ("model", PALETTE.model, 1, True),
-                                          ("residual", PALETTE.residual, 2, True),
-                                          ("measured spectrum", PALETTE.measured, 3, False),
-                                          ("residual spectrum", PALETTE.residual, 3, False)):
-            self.fig.add_scatter(x=[], y=[], mode="lines", name=name, showlegend=legend,
-                                 line={"color": colour, "width": 1}, row=row, col=1)
+        self.fig = stacked_figure(
+            ("measured and model in the fit window", "residual (measured − model)",
+             "spectra: measured and residual"),
+            (("measured", PALETTE.measured, 1, True), ("model", PALETTE.model, 1, True),
+             ("residual", PALETTE.residual, 2, True),
+             ("measured spectrum", PALETTE.measured, 3, False),
+             ("residual spectrum", PALETTE.residual, 3, False)), 700, spacing=0.15)
         self.fig.update_xaxes(title_text="time [s]", row=2, col=1)
         self.fig.update_xaxes(title_text="frequency [Hz]", row=3, col=1)
         self.fig.update_yaxes(type="log", row=3, col=1)

@@ -21,15 +21,13 @@ from typing import Any
 
 import ipywidgets as w
 import numpy as np
-import plotly.graph_objects as go
-from plotly.subplots import make_subplots
 
 from .._display import PALETTE, decimate_for_display, to_db
 from .._errors import ModalnbError
 from .._numbers import format_quantity
 from ..frf_compare import frf_label
 from ..session import Analysis
-from ._base import LEGEND_BELOW, LEGEND_MARGIN, esc, fig_box, figure, table_html
+from ._base import esc, fig_box, figure, stacked_figure, table_html
 
 __all__ = ["CoherenceView", "FrfCheckView", "ModelPairingView", "model_pairing", "display_index"]
 
@@ -188,18 +186,11 @@ class FrfCheckView(_View):
         self.excitation.add_class("modalnb-frfcheck-excitation")
         self.channel = w.Dropdown(options=a.channels, value=a.channels[-1], description="channel")
         self.channel.add_class("modalnb-frfcheck-channel")
-        self.fig = go.FigureWidget(make_subplots(
-            rows=2, cols=1, shared_xaxes=True, vertical_spacing=0.1,
-            subplot_titles=("magnitude", "phase")))
-        self.fig.update_layout(height=480, template="plotly_white", autosize=True,
-                               margin={"l": 60, "r": 20, "t": 50, "b": LEGEND_MARGIN},
-                               legend=LEGEND_BELOW)
-        for name, colour, row, legend in (("measured", PALETTE.measured, 1, True),
-                                          ("model", PALETTE.model, 1, True),
-                                          ("measured phase", PALETTE.measured, 2, False),
-                                          ("model phase", PALETTE.model, 2, False)):
-            self.fig.add_scatter(x=[], y=[], mode="lines", name=name, showlegend=legend,
-                                 line={"color": colour, "width": 1}, row=row, col=1)
+        self.fig = stacked_figure(
+            ("magnitude", "phase"),
+            (("measured", PALETTE.measured, 1, True), ("model", PALETTE.model, 1, True),
+             ("measured phase", PALETTE.measured, 2, False),
+             ("model phase", PALETTE.model, 2, False)), 480, shared_xaxes=True)
         self.fig.update_yaxes(title_text="dB re 1 unit", row=1, col=1)
         self.fig.update_yaxes(title_text="phase [°]", range=[-185, 185], row=2, col=1)
         self.fig.update_xaxes(title_text="frequency [Hz]", row=2, col=1)
