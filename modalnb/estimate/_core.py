@@ -16,6 +16,7 @@ import numpy as np
 from .._errors import EstimationError
 from ._basis import natural
 from ._pencil import PencilOutput, find_poles, initial_modes
+from ._select import ASKED_TOL, ENERGY_FACTOR, frequency_std_limit
 from ._significance import significance_threshold
 from ._varpro import (
     Problem,
@@ -25,12 +26,6 @@ from ._varpro import (
     natural_with_cov,
     refine,
 )
-
-#: A fitted mode within this fraction of a frequency the user added is that added mode:
-#: a user reads a peak off a spectrum plot to a few per cent; 3 % is tighter than the 5 %
-#: of ``drop_modes`` because an added seed moves little while it converges, while a mode to
-#: drop is named from a table or chart after the fact (common practice).
-ASKED_TOL = 0.03
 
 #: Pole parameters are scaled by ``2 pi fs / 10`` (the angular frequency of a mode at a
 #: tenth of the sample rate) so that sigma and u are of order one for the solver; any
@@ -237,8 +232,6 @@ def _not_clearly_aside(prob: Problem, x: np.ndarray, rss: float, n_tot: int, n_l
     or its frequency standard deviation above the table's limit by `factor` (the rules
     of :func:`._select._select_modes`, with a margin).
     """
-    from ._select import ENERGY_FACTOR, frequency_std_limit
-
     cov = covariance(prob, x, rss, n_tot, n_lin)
     fn, _, fn_std, _ = natural_with_cov(prob, x, cov)
     e_min = ENERGY_FACTOR * thr
