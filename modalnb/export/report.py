@@ -291,7 +291,7 @@ def _node_shapes(ctx: ReportContext) -> str:
                  number_cell(scaled[k, j], "amplitude")]
                 for j, (n, d, ro) in enumerate(zip(names, dirs, roles, strict=True))]
         head = ["Node", "Direction", "Role", "Amplitude", "Phase [°]", "Scaled [kg^-1/2]"]
-        blocks.append(_table(head, rows, "node-shapes", numeric=(3, 4, 5), caption=cap))
+        blocks.append(_table(head, rows, "node-shapes", numeric=(3, 4, 5), words=(2,), caption=cap))
     return ("<p class=note>Shapes over the structure's nodes from every hit's residues "
             "(roving hammer or several setups): amplitude normalised to 1 on the largest node, "
             "phase relative to it, direction signs applied; scaled: mass-normalised through "
