@@ -38,6 +38,18 @@ def _check_truth(ds) -> None:
         np.testing.assert_array_less(err, np.maximum(5 * ds["frequency_hz_std"].values[i], 5e-4 * f_true))
 
 
+def _count_set_fits(monkeypatch) -> list[str]:
+    """The labels of the sets the campaign fits from now on (the real fit still runs)."""
+    calls: list[str] = []
+    real = campaign._fit_set
+
+    def counting(label, *args):
+        calls.append(label)
+        return real(label, *args)
+
+    monkeypatch.setattr(campaign, "_fit_set", counting)
+    return calls
+
 def test_local_cluster_two_workers_matches_synchronous_and_truth(parts, tmp_path):
     sync = fit_campaign(parts, workers=0, tolerance=3.0)
     dist = fit_campaign(parts, workers=2, tolerance=3.0, out=tmp_path / "out")
@@ -89,14 +101,7 @@ def test_resume_after_sigkill_refits_only_unfinished_sets(tmp_path, monkeypatch)
     inode = {s: os.stat(out / "sets" / s / "modes.nc").st_ino for s in done}
     (out / "sets" / ".P004.new-leftover").mkdir()  # what a kill during a set's write leaves
 
-    calls: list[str] = []
-    real = campaign._fit_set
-
-    def counting(label, *args):
-        calls.append(label)
-        return real(label, *args)
-
-    monkeypatch.setattr(campaign, "_fit_set", counting)
+    calls = _count_set_fits(monkeypatch)
     ds = fit_campaign(manifest, out=out, workers=0)
     assert calls == ["P004", "P005", "P006"]
     assert list(ds["set_status"].values) == ["ok"] * 6
@@ -155,14 +160,8 @@ def test_resume_after_the_whole_command_on_a_cluster_is_sigkilled(tmp_path, monk
     stamp = {s: ((out / "sets" / s / "modes.nc").stat().st_ino,
                  (out / "sets" / s / campaign.SET_MARKER).read_bytes()) for s in finished}
 
-    calls: list[str] = []
     real = campaign._fit_set
-
-    def counting(label, *args):
-        calls.append(label)
-        return real(label, *args)
-
-    monkeypatch.setattr(campaign, "_fit_set", counting)
+    calls = _count_set_fits(monkeypatch)
     ds = fit_campaign(manifest, out=out, workers=0)
     assert calls == unfinished
     assert list(ds["set_status"].values) == ["ok"] * 12
@@ -191,14 +190,7 @@ def test_a_set_whose_files_were_damaged_is_fitted_again(tmp_path, monkeypatch):
         b = fh.read(1)
         fh.seek(200)
         fh.write(bytes([b[0] ^ 0xFF]))
-    calls: list[str] = []
-    real = campaign._fit_set
-
-    def counting(label, *args):
-        calls.append(label)
-        return real(label, *args)
-
-    monkeypatch.setattr(campaign, "_fit_set", counting)
+    calls = _count_set_fits(monkeypatch)
     fit_campaign(manifest, out=out, workers=0)
     assert calls == ["P002", "P003"]
     assert (out / "tracked_modes.csv").read_bytes() == first
