@@ -54,5 +54,5 @@ def load_netcdf4(path: str | os.PathLike[str], **kwargs: Any) -> Any:
         return xr.load_dataset(path, engine=engine, **kwargs)
     try:
         return xr.load_dataset(path, engine=engine, **kwargs)
-    except (OSError, ValueError, TypeError, KeyError, IndexError, RuntimeError):
+    except (OSError, ValueError, TypeError, KeyError, IndexError, EOFError, RuntimeError):
         return xr.load_dataset(path, engine=FALLBACK_ENGINE, **kwargs)

@@ -347,10 +347,6 @@ def _bytes_digest(data: bytes) -> str:
     return "sha256:" + hashlib.sha256(data).hexdigest()
 
 
-def _read_table(path: Path) -> xr.Dataset:
-    return load_netcdf4(path)
-
-
 def _remove_stale(sets_dir: Path) -> None:
     """Remove the half-built set folders a killed run left (``.<set>.new-*``, ``.<set>.old-*``).
 
@@ -434,7 +430,7 @@ def _finished(set_dir: Path, digests: tuple[str | None, str]) -> dict[str, Any] 
         else:
             if not (set_dir / "modes.nc").is_file():
                 return None
-            out = _summary(_read_table(set_dir / "modes.nc"))
+            out = _summary(load_netcdf4(set_dir / "modes.nc"))
     except (OSError, ValueError, KeyError, TypeError):
         return None
     out["status"] = "ok"
@@ -571,7 +567,7 @@ def _reference_summary(reference: Any) -> tuple[dict[str, Any], str]:
     if not nc.is_file():
         raise FileNotFoundError(2, "reference modal table (modes.nc) not found", str(nc))
     try:
-        table = _read_table(nc)
+        table = load_netcdf4(nc)
     except (OSError, ValueError) as exc:
         raise ManifestError(f"{nc}: not a modal table written by `modalnb fit` ({exc}).") from None
     missing = [v for v in ("frequency_hz", "damping_ratio", "frequency_hz_std", "damping_ratio_std")

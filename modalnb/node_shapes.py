@@ -166,6 +166,7 @@ def _entries(keys: Sequence[tuple[str, str]]) -> _Entries:
         axes_of.setdefault(n, [])
         if a and a not in axes_of[n]:
             axes_of[n].append(a)
+    key_set = set(keys)
     slots: list[tuple[str, str, str]] = []  # (label, name, axis)
     index_key: dict[tuple[str, str], tuple[str, str, str]] = {}
     for n in sorted(axes_of, key=_natural_key):
@@ -181,7 +182,7 @@ def _entries(keys: Sequence[tuple[str, str]]) -> _Entries:
             slot = (f"{n}+{a}", n, a)
             slots.append(slot)
             index_key[(n, a)] = slot
-        if (n, "") in set(keys):
+        if (n, "") in key_set:
             slot = (n, n, "")
             slots.append(slot)
             index_key[(n, "")] = slot
@@ -478,13 +479,13 @@ def _roles(rs: ResidueSet) -> list[str]:
 
 
 def node_dataset(rs: ResidueSet, psi: np.ndarray, absolute: np.ndarray, notes: Sequence[str],
-                 table: xr.Dataset, roles: Sequence[str] | None = None) -> xr.Dataset:
+                 table: xr.Dataset) -> xr.Dataset:
     """The node-shape variables and the ``node`` coords as a Dataset (over mode, node)."""
     resp_u, force_u = _units_of(table)
     dv = shape_variables(psi, absolute, notes, np.asarray(table["frequency_hz"].values, float),
                          np.asarray(table["damping_ratio"].values, float),
                          response_units=resp_u, force_units=force_u, driving=bool(rs.driving))
-    roles = list(roles or _roles(rs))
+    roles = _roles(rs)
     both = [rs.labels[e] for e, r in enumerate(roles) if r == "both"]
     if both and not rs.driving:  # say what would make a driving point
         hint = (f"no driving point (node {both[0]} is sensed and hit, but the direction of "
@@ -595,7 +596,7 @@ def with_node_shapes(table: xr.Dataset, records: xr.Dataset) -> xr.Dataset:
     >>> res["node_shape_amplitude"].dims, "channel_node" in res.coords
     (('mode', 'node'), True)
     """
-    if not is_roving(records) or "hit_setup" in records.coords:
+    if "hit_setup" in records.coords or not is_roving(records):
         return table
     out = table
     if "node" in out.coords and out["node"].dims == ("channel",):

@@ -54,6 +54,9 @@ from .node_shapes import (
     residue_set,
     shape_over_nodes,
 )
+from .node_shapes import (
+    _texts as node_texts,
+)
 from .records import MIN_SAMPLES, build_records, get_sample_rate, validate_records
 
 __all__ = ["SetupError", "read_setup_manifest", "combine_setups", "setup_node_shapes",
@@ -142,9 +145,8 @@ def _names(records_list: Sequence[xr.Dataset], names: Sequence[str] | None) -> l
 
 
 def _texts(ds: xr.Dataset, name: str, dim: str, n: int) -> list[str]:
-    if name not in ds.coords or ds[name].dims != (dim,):
-        return [""] * n
-    return [str(v).strip() for v in np.asarray(ds[name].values).tolist()]
+    """The text labels of coord `name` over `dim` (a missing label is ""); n blanks without it."""
+    return node_texts(ds, name, dim) or [""] * n
 
 
 def _setup_meta(name: str, ds: xr.Dataset) -> dict[str, Any]:
@@ -466,19 +468,18 @@ def setup_node_shapes(table: xr.Dataset, records: xr.Dataset, *,
             out[name].attrs["description"] = (
                 "over the channel slots of combined setups (least squares over every setup's "
                 "hits): not a shape; the shape is node_shape_*")
+    refs_list = None if reference_channels is None else list(
+        [reference_channels] if isinstance(reference_channels, str) else reference_channels)
     if isinstance(out.attrs.get("recipe"), str):  # the choice lives in the recipe
         from dataclasses import replace
 
         from .recipe import Recipe
 
-        refs_list = None if reference_channels is None else list(
-            [reference_channels] if isinstance(reference_channels, str) else reference_channels)
         out.attrs["recipe"] = replace(Recipe.from_json(out.attrs["recipe"]),
                                       reference_channels=refs_list).to_json()
     out.attrs["setups"] = json.dumps({
         "setups": meta,
-        "reference_channels": None if reference_channels is None else list(
-            [reference_channels] if isinstance(reference_channels, str) else reference_channels),
+        "reference_channels": refs_list,
         "reference_nodes": sorted(f"{n}{'+' + a if a else ''}" for n, a in refs),
     })
     return out

@@ -91,18 +91,18 @@ def node_shapes_rows(result: xr.Dataset) -> list[dict[str, Any]]:
     ``node_shapes.csv`` (none when the table has no shapes over nodes)."""
     if "node_shape_amplitude" not in result.data_vars:
         return []
-    rows = _rows(result, ("mode", "node"), NODE_SHAPE_COLUMNS, _NODE_RENAME)
-    extra = {"node_name": "node_name", "direction": "node_direction", "role": "node_role"}
-    index = {str(n): j for j, n in enumerate(result["node"].values.tolist())}
-    for row in rows:
+    nodes = [str(n) for n in result["node"].values.tolist()]
+    per_node = {col: ([_value(v) for v in result[coord].values] if coord in result.coords
+                      else [""] * len(nodes))
+                for col, coord in (("node_name", "node_name"), ("direction", "node_direction"),
+                                   ("role", "node_role"))}
+    index = {n: j for j, n in enumerate(nodes)}
+    out = []
+    for row in _rows(result, ("mode", "node"), NODE_SHAPE_COLUMNS, _NODE_RENAME):
         j = index[str(row["node"])]
-        ordered = {"mode": row["mode"], "node": row["node"]}
-        for col, coord in extra.items():
-            ordered[col] = _value(result[coord].values[j]) if coord in result.coords else ""
-        ordered.update({k: v for k, v in row.items() if k not in ("mode", "node")})
-        row.clear()
-        row.update(ordered)
-    return rows
+        out.append({"mode": row.pop("mode"), "node": row.pop("node"),
+                    **{col: values[j] for col, values in per_node.items()}, **row})
+    return out
 
 
 def hits_rows(result: xr.Dataset, checks: xr.Dataset | None = None) -> list[dict[str, Any]]:

@@ -20,7 +20,7 @@ import xarray as xr
 
 from .._errors import RecordError
 from .._files import atomic_write_with
-from .._netcdf import FALLBACK_ENGINE, netcdf4_engine
+from .._netcdf import load_netcdf4, netcdf4_engine
 from ..records import _str_array, build_records, record_parts, validate_records
 from ._common import plain_attrs
 
@@ -47,18 +47,11 @@ def _engine(src: str, head: bytes) -> str:
 
 def _load(path: Path, src: str, engine: str) -> xr.Dataset:
     try:
-        extra = {"mmap": False} if engine == "scipy" else {}
-        try:
-            ds = xr.load_dataset(
-                path, engine=engine, decode_times=False, decode_timedelta=False, **extra
-            )
-        except (*_LOAD_ERRORS, RuntimeError):
-            if engine != "netcdf4":
-                raise
-            # an HDF5 file netCDF-C refuses: h5netcdf's reading (and its error) decides
-            ds = xr.load_dataset(
-                path, engine=FALLBACK_ENGINE, decode_times=False, decode_timedelta=False
-            )
+        if engine == "scipy":
+            ds = xr.load_dataset(path, engine=engine, decode_times=False, decode_timedelta=False,
+                                 mmap=False)
+        else:  # netCDF-C, and h5netcdf's reading (and its error) for a file it refuses
+            ds = load_netcdf4(path, decode_times=False, decode_timedelta=False)
     except _LOAD_ERRORS as exc:
         kind = "netCDF3" if engine == "scipy" else "netCDF4/HDF5"
         raise RecordError(
