@@ -14,8 +14,7 @@ import numpy as np
 
 from ._errors import ModalnbError
 
-__all__ = ["Palette", "PALETTE", "MAX_POINTS", "decimate_for_display", "envelope_db", "to_db",
-           "mode_line"]
+__all__ = ["Palette", "PALETTE", "MAX_POINTS", "decimate_for_display", "envelope_db", "to_db"]
 
 
 @dataclass(frozen=True)
@@ -70,18 +69,6 @@ class Palette:
 
 #: The palette every figure and page of modalnb uses.
 PALETTE = Palette()
-
-
-
-def mode_line() -> dict[str, object]:
-    """The one style of a fitted mode's vertical line, in the widgets and the report.
-
-    Examples
-    --------
-    >>> mode_line() == PALETTE.mode_line, mode_line()["dash"]
-    (True, 'dash')
-    """
-    return dict(PALETTE.mode_line)
 
 
 #: Most points sent per trace (what a screen a few thousand pixels wide can show).

@@ -34,6 +34,7 @@ from __future__ import annotations
 import datetime as _dt
 import html
 import json
+import math
 import os
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
@@ -46,7 +47,7 @@ import xarray as xr
 from .._display import PALETTE, decimate_for_display
 from .._errors import ModalnbError, RecipeError
 from .._files import atomic_write_text
-from .._numbers import format_quantity
+from .._numbers import format_quantity, format_with_uncertainty
 from ..recipe import Recipe, package_version
 from ._aside import ASIDE_TITLE, aside_rows
 from ._cells import damping_cell, is_number, number_cell, pm_cell
@@ -249,8 +250,7 @@ def _shapes(ctx: ReportContext) -> str:
     extra = [c for c in ("node", "direction") if c in coords and coords[c].dims == ("channel",)]
     blocks = []
     for k in range(ctx.n_modes):
-        f = pm_cell(ctx.var("frequency_hz", k), ctx.var("frequency_hz_std", k), "Hz")
-        cap = f"Mode {_text(ctx.result['mode'].values[k])}: f_n = {f}" + ("" if f.endswith("Hz") else " Hz")
+        cap = _mode_caption(ctx, k)
         rows = []
         for c, ch in enumerate(ctx.channels):
             rows.append([ch, *(_text(coords[x].values[c]) for x in extra),
@@ -261,6 +261,14 @@ def _shapes(ctx: ReportContext) -> str:
     return ("<p class=note>Amplitude normalised to 1 on the largest channel, phase in degrees "
             "relative to it; sensor direction signs removed.</p>"
             f'<div class="shape-grid">{"".join(blocks)}</div>')
+
+
+def _mode_caption(ctx: ReportContext, k: int) -> str:
+    """``Mode 2: f_n = 32.61509 ± 0.00015 Hz`` (GUM 7.2.6 through the one formatter)."""
+    f, u = ctx.var("frequency_hz", k), ctx.var("frequency_hz_std", k)
+    text = format_with_uncertainty(float(f), float(u) if is_number(u) else math.nan, unit="Hz") \
+        if is_number(f) else "-"
+    return f"Mode {_text(ctx.result['mode'].values[k])}: f_n = {text}"
 
 
 def _node_shapes(ctx: ReportContext) -> str:
@@ -278,8 +286,7 @@ def _node_shapes(ctx: ReportContext) -> str:
     roles = [_text(x) for x in r["node_role"].values] if "node_role" in r.coords else [""] * len(names)
     blocks = []
     for k in range(ctx.n_modes):
-        f = pm_cell(ctx.var("frequency_hz", k), ctx.var("frequency_hz_std", k), "Hz")
-        cap = f"Mode {_text(r['mode'].values[k])}: f_n = {f}" + ("" if f.endswith("Hz") else " Hz")
+        cap = _mode_caption(ctx, k)
         mass, mpc, status = ctx.var("modal_mass_kg", k), ctx.var("node_shape_mpc", k), ctx.var("node_shape_status", k)
         if is_number(mass) and np.isfinite(mass):
             cap += f"; modal mass {format_quantity(float(mass), 'amplitude', unit=False)} kg"
@@ -318,9 +325,8 @@ def _hits(ctx: ReportContext) -> str:
         decision = m.get("user_decision") or ""
         dur = m.get("pulse_duration_s")
         dur_text = "-"
-        if is_number(dur) and np.isfinite(dur):
-            dur_text = format_quantity(dur * 1e3, "ratio", unit=False) if step is None else \
-                _ms(dur, step)
+        if is_number(dur) and np.isfinite(dur):  # pulses are far below 1 s: ms, as the heading says
+            dur_text = format_quantity(float(dur), "time", step=step, unit=False)
         body.append([
             str(r["hit"]), "yes" if r["accepted"] else "no",
             f"you ({decision})" if decision else "checks",
@@ -332,13 +338,6 @@ def _hits(ctx: ReportContext) -> str:
     n_used = sum(1 for r in rows if r["accepted"])
     return (f"<p>{n_used} of {len(rows)} hits used in the fit.</p>"
             + _table(head, body, "hits", numeric=(3, 4, 5), words=(0, 1, 2)))
-
-
-def _ms(seconds: float, step: float) -> str:
-    """A duration in ms to the sample step (bare number; the heading says ms)."""
-    from .._numbers import _places, _step_decimals
-
-    return _places(seconds * 1e3, _step_decimals(step * 1e3))
 
 
 def _figures_section(ctx: ReportContext) -> str:
@@ -403,8 +402,8 @@ SECTIONS: list[tuple[str, str, Callable[[ReportContext], str]]] = [
     ("node-shapes", "Shapes over nodes", _node_shapes),
     ("hits", "Hit decisions", _hits),
     ("figures", "Figures", _figures_section),
-    ("frf", "", lambda ctx: _frf_section(ctx)),
-    ("shape-view", "", lambda ctx: _shape_view_section(ctx)),
+    ("frf", "", _frf_section),
+    ("shape-view", "", _shape_view_section),
 ]
 
 #: The last section, after any extra ones.

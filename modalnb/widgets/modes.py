@@ -9,7 +9,7 @@ from typing import Any
 import ipywidgets as w
 import numpy as np
 
-from .._display import PALETTE, decimate_for_display, mode_line
+from .._display import PALETTE, decimate_for_display
 from .._utils import default_band
 from ..session import Analysis
 from ._base import Panel, esc, fig_box, figure, number, table_html
@@ -221,7 +221,7 @@ class ModesPanel(Panel):
             fk = r["frequency_hz"].values if r is not None and r.sizes.get("mode", 0) else []
             self.stab.layout.shapes = [
                 dict(type="line", xref="x", yref="paper", x0=float(f0), x1=float(f0), y0=0, y1=1,
-                     line=mode_line()) for f0 in fk]
+                     line=PALETTE.mode_line) for f0 in fk]
         rows = [{"cls": label, "meaning": what, "count": number(counts.get(meaning, 0), "count")}
                 for meaning, label, what, _s, _c in STAB_CLASSES]
         self.stab_note.value = (
