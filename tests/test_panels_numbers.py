@@ -2,7 +2,7 @@
 hit decision in each hit's row, the square MAC over the accepted hits, the stabilisation
 legend's classes and counts.
 
-Expected texts are rounded here by the few lines of :func:`_gum` and :func:`_places`
+Expected texts are rounded here by the tests' own GUM 7.2.6 lines (gum_rounding.gum_pm) and :func:`_places`
 (JCGM 100:2008, GUM 7.2.6: the standard uncertainty to two significant digits, the value to
 the same decimal place; times to the sample step; dB to 0.1 dB, common practice), never by
 modalnb._numbers. The demo truth (demo_truth.json: hit 4 double hit) names the hit the checks
@@ -18,6 +18,7 @@ from html.parser import HTMLParser
 
 import numpy as np
 import pytest
+from gum_rounding import gum_pm
 
 from modalnb.demo import load_demo, load_demo_truth
 from modalnb.widgets import analysis_desk
@@ -33,14 +34,6 @@ def desk(tmp_path_factory):
 
 def _round(x: float, exp: int) -> Decimal:
     return Decimal(repr(float(x))).quantize(Decimal(1).scaleb(exp), rounding=ROUND_HALF_UP)
-
-
-def _gum(value: float, u: float) -> str:
-    """GUM 7.2.6 written out: u to two significant digits, the value to the same place."""
-    exp = math.floor(math.log10(u)) - 1
-    if _round(u, exp) >= 100 * Decimal(1).scaleb(exp):  # 0.0996 -> 0.10: one place less
-        exp += 1
-    return f"{_round(value, exp)} ± {_round(u, exp)}"
 
 
 def _places(value: float, decimals: int) -> str:
@@ -92,9 +85,9 @@ def test_modal_table_writes_value_and_u_as_gum_7_2_6(desk):
     z = _cells(p.modes.value, r"modalnb-mode-\d+-damping_pct")
     assert len(f) == len(z) == r.sizes["mode"] > 0
     for k in range(r.sizes["mode"]):
-        assert f[k] == _gum(r["frequency_hz"].values[k], r["frequency_hz_std"].values[k])
+        assert f[k] == gum_pm(r["frequency_hz"].values[k], r["frequency_hz_std"].values[k])
         # damping ratio in per cent: the ratio and its u times 100
-        assert z[k] == _gum(100 * r["damping_ratio"].values[k], 100 * r["damping_ratio_std"].values[k])
+        assert z[k] == gum_pm(r["damping_ratio"].values[k], r["damping_ratio_std"].values[k], scale=100)
     # the time window panel's damping table shows the same texts
     wz = _cells(desk.window.damping.value, r"modalnb-damp-\d+-damping_pct")
     assert wz == z

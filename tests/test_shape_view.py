@@ -115,8 +115,8 @@ def test_view_plays_pauses_and_rescales_offline_in_chromium():
         moving = page.evaluate("Array.from(document.getElementById('modalnb-shape-view').data[3].text)")
     assert op.external == [] and op.dialogs == [] and op.errors == []
     # node B: z = s Re(e^{j(90 deg + theta)}) = -s sin(theta); doubling the amplitude doubles it
+    assert z2 == pytest.approx(2 * z1, rel=1e-9, abs=1e-12)
     if abs(np.sin(theta)) > 1e-6:
-        assert z2 == pytest.approx(2 * z1, rel=1e-9)
         assert np.sign(z1) == -np.sign(np.sin(theta))
     assert "mode 2" in title
     assert still == ["A", "C"] and moving == ["B", "&lt;img src=x onerror=alert(1)&gt;"]  # mode 2: C still
