@@ -49,10 +49,6 @@ ROUND_ITER = 12
 #: it (a model that passes the look just iterates on, at the cost of one look).
 WARM_ROUND_ITER = 4
 
-#: Most iterations on one set of modes, and over the whole prune loop: the loop's cost is
-#: bounded whatever the data (a misfit window that drops one mode per round ends after at
-#: most this many normal-matrix builds); a fit stopped by a budget says so in
-#: ``CoreResult.converged`` (common practice: a well-posed fit converges in a few dozen).
 #: Convergence of a warm start (a refit, a fast preview): Levenberg-Marquardt stops when
 #: no pole parameter's Gauss-Newton step reaches this fraction of its standard deviation
 #: (:func:`._varpro.step_in_std`). The relative offset (an RMS over all parameters) is
@@ -83,6 +79,10 @@ CLEARLY_NOT_A_MODE = 3.0
 #: fit, which a refit's documentation allows).
 WARM_NOT_A_MODE = 1.0
 
+#: Most iterations on one set of modes, and over the whole prune loop: the loop's cost is
+#: bounded whatever the data (a misfit window that drops one mode per round ends after at
+#: most this many normal-matrix builds); a fit stopped by a budget says so in
+#: ``CoreResult.converged`` (common practice: a well-posed fit converges in a few dozen).
 MAX_MODEL_ITER = 60
 MAX_TOTAL_ITER = 180
 
@@ -225,7 +225,7 @@ def _valid(prob: Problem, x: np.ndarray, fs: float) -> np.ndarray:
 
 def _not_clearly_aside(prob: Problem, x: np.ndarray, rss: float, n_tot: int, n_lin: int,
                        signif: np.ndarray, thr: float, t_len: float,
-                       factor: float = 3.0) -> np.ndarray | None:
+                       factor: float) -> np.ndarray | None:
     """Mask over the packed parameters of the poles that may be modes (None: all may be).
 
     A pole is clearly not a mode when its energy is below the table's limit by `factor`
@@ -357,15 +357,19 @@ def fit_core(
                               for f in fn_now])
             weak &= ~asked
         out_of_budget = total_iter >= MAX_TOTAL_ITER or pruned >= MAX_PRUNE_ROUNDS
-        watch = _not_clearly_aside(prob, x, rss, n_tot, n_lin, signif, thr, t_len,
-                                   WARM_NOT_A_MODE if warm else CLEARLY_NOT_A_MODE)
+        not_a_mode = WARM_NOT_A_MODE if warm else CLEARLY_NOT_A_MODE
         if not drop.any() and not weak.any():
             if stopped or model_iter >= MAX_MODEL_ITER or out_of_budget:
                 converged = stopped
                 break
-            continue  # the same modes, not converged yet: iterate on
+            # the same modes, not converged yet: iterate on (the verdicts for the next round)
+            watch = _not_clearly_aside(prob, x, rss, n_tot, n_lin, signif, thr, t_len, not_a_mode)
+            continue
         if out_of_budget and not drop.any():
             break  # budget spent: keep what it has (converged stays False)
+        # a pruned round follows unless the budget is spent (then the loop ends below)
+        watch = None if out_of_budget else _not_clearly_aside(
+            prob, x, rss, n_tot, n_lin, signif, thr, t_len, not_a_mode)
         if drop.any():
             keep = ~drop
         else:

@@ -20,15 +20,10 @@ BIAS = {
 }
 
 
-def _signal(records: xr.Dataset, result: xr.Dataset, channel_index: int,
-            ) -> tuple[np.ndarray, float]:
-    """The window of `result` on the first accepted hit's channel `channel_index`, the
-    acquisition's exponential window undone, unit peak, zero mean; and the sample rate."""
-    return _signals(records, result)(channel_index)
-
-
 def _signals(records: xr.Dataset, result: xr.Dataset) -> Any:
-    """:func:`_signal` of each channel, the window and hit found once."""
+    """A function of a channel index giving the window of `result` on the first accepted
+    hit's channel (the acquisition's exponential window undone, unit peak, zero mean) and
+    the sample rate; the window and hit are found once for all channels."""
     t = np.asarray(records["time"].values, float)
     w0, w1 = result.attrs["window"]
     sel = (t >= w0 - 1e-12) & (t <= w1 + 1e-12)
