@@ -3,9 +3,22 @@
 from __future__ import annotations
 
 import difflib
+import re
 from collections.abc import Iterable
+from typing import Any
 
 from ._errors import ModalnbError
+
+
+def natural_key(name: str) -> list[Any]:
+    """Sort key that puts 'n2' before 'n10' (digit runs compare as numbers).
+
+    Examples
+    --------
+    >>> sorted(["n10", "n2", "m1"], key=natural_key)
+    ['m1', 'n2', 'n10']
+    """
+    return [int(p) if p.isdigit() else p for p in re.split(r"(\d+)", name)]
 
 
 def did_you_mean(name: str, options: Iterable[str]) -> str:

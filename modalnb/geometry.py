@@ -31,7 +31,6 @@ from __future__ import annotations
 import csv
 import math
 import os
-import re
 import warnings
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
@@ -42,7 +41,7 @@ import numpy as np
 import xarray as xr
 
 from ._errors import ModalnbError, ModalnbWarning
-from ._utils import did_you_mean
+from ._utils import did_you_mean, natural_key
 
 __all__ = [
     "Geometry",
@@ -303,11 +302,6 @@ def geometry_from_records(records: xr.Dataset) -> Geometry | None:
     return Geometry(tuple(out), np.array(list(out.values())), source="records")
 
 
-def _natural_key(name: str) -> list[Any]:
-    """'n2' before 'n10': digits compare as numbers."""
-    return [int(p) if p.isdigit() else p for p in re.split(r"(\d+)", name)]
-
-
 def table_nodes(table: xr.Dataset, records: xr.Dataset | None = None) -> list[str]:
     """The nodes a modal table (and its records' hits) speaks of, in first-seen order.
 
@@ -386,7 +380,7 @@ def structure_geometry(table: xr.Dataset, *, geometry: Geometry | None = None,
         if added and g.source not in sources:
             sources.append(g.source)
         lines += [ln for ln in g.lines if ln not in lines]
-    missing = sorted((n for n in table_nodes(table, records) if n not in nodes), key=_natural_key)
+    missing = sorted((n for n in table_nodes(table, records) if n not in nodes), key=natural_key)
     placed: list[str] = []
     if missing:
         if xyz:

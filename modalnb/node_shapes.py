@@ -58,6 +58,7 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
+from ._utils import natural_key
 from .estimate import mpc
 
 __all__ = [
@@ -142,10 +143,6 @@ def is_roving(ds: xr.Dataset) -> bool:
     return len({(n, a) for n, a, _ in dofs if n}) > 1
 
 
-def _natural_key(label: str) -> list[Any]:
-    return [int(p) if p.isdigit() else p for p in re.split(r"(\d+)", label)]
-
-
 @dataclass
 class _Entries:
     """The node entries: one per node, or one per node and axis where a node is met
@@ -169,7 +166,7 @@ def _entries(keys: Sequence[tuple[str, str]]) -> _Entries:
     key_set = set(keys)
     slots: list[tuple[str, str, str]] = []  # (label, name, axis)
     index_key: dict[tuple[str, str], tuple[str, str, str]] = {}
-    for n in sorted(axes_of, key=_natural_key):
+    for n in sorted(axes_of, key=natural_key):
         stated = sorted(axes_of[n])
         if len(stated) <= 1:
             slot = (n, n, stated[0] if stated else "")

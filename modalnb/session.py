@@ -204,7 +204,8 @@ class Analysis:
         self._listeners: list[Listener] = []
         self._spectrum: tuple[tuple[int, ...], np.ndarray, np.ndarray] | None = None
         self._model_cache: tuple[tuple[int, int], Any] | None = None
-        self._frf_cache: tuple[Any, ...] | None = None
+        self._frf_cache: tuple[tuple[bool, ...], xr.Dataset] | None = None  # (hits used, H1)
+        self._model_frf_cache: tuple[xr.Dataset, xr.Dataset] | None = None  # (result, model)
         self._pair_cache: tuple[tuple[Any, Any], xr.Dataset] | None = None
         #: the analysis model the test is compared with (:meth:`compare_with_model`), or None
         self.test_model: xr.Dataset | None = None
@@ -773,11 +774,9 @@ class Analysis:
 
         if self.result is None:
             raise ModalnbError("no result yet: the fit has not succeeded.")
-        used = tuple(np.asarray(self.result["hit_accepted"].values, bool).tolist()
-                     if "hit_accepted" in self.result else self.accepted_hits())
-        c = self._frf_cache
-        if c is None or c[0] != used:
-            self._frf_cache = (used, frf(self.records, accept=self.result), None, None)
+        used = tuple(np.asarray(self.result["hit_accepted"].values, bool).tolist())
+        if self._frf_cache is None or self._frf_cache[0] != used:
+            self._frf_cache = (used, frf(self.records, accept=self.result))
         return self._frf_cache[1]
 
     def model_frf(self) -> xr.Dataset:
@@ -788,14 +787,12 @@ class Analysis:
         Attribute ``model_note`` says where the table holds no model for an excitation."""
         from .frf_compare import model_frf_for
 
-        measured = self.measured_frf()
-        c = self._frf_cache
-        assert c is not None
-        if c[2] is not self.result:
+        measured = self.measured_frf()  # follows the result's hits: a new result for new hits
+        if self._model_frf_cache is None or self._model_frf_cache[0] is not self.result:
             model, note = model_frf_for(measured, self.result)
             model.attrs["model_note"] = note
-            self._frf_cache = (c[0], c[1], self.result, model)
-        return self._frf_cache[3]
+            self._model_frf_cache = (self.result, model)
+        return self._model_frf_cache[1]
 
     def compare_with_model(self, model: Any) -> xr.Dataset:
         """Keep an analysis model to compare the test with; return :meth:`model_pairing`.

@@ -123,6 +123,7 @@ class CoherenceView(_View):
         self.channel = w.Dropdown(options=a.channels, value=a.channels[-1], description="channel")
         self.channel.add_class("modalnb-coherence-channel")
         self.channel.observe(lambda ch: self.refresh(), "value")
+        self._shown: tuple[Any, ...] | None = None  # (measured FRF, channel, band) drawn
         self.fig = figure(300, title="coherence of the accepted hits", xaxis_title="frequency [Hz]",
                           yaxis={"title": "coherence", "range": [0, 1.05]}, showlegend=True)
         self._box([w.HTML("<b>Coherence</b> of the accepted hits, per excitation point "
@@ -138,6 +139,10 @@ class CoherenceView(_View):
         except ModalnbError as exc:
             self.note.value = _note(" ".join(str(exc).split()), "error")
             return
+        shown = (m, self.channel.value, tuple(_band(a) or ()))
+        if self._shown is not None and shown[0] is self._shown[0] and shown[1:] == self._shown[1:]:
+            return  # a new window, the same hits: the same coherence, already drawn
+        self._shown = shown
         c = a.channels.index(self.channel.value)
         f = m["frequency"].values
         names = [str(e) for e in m["excitation"].values]
