@@ -29,7 +29,7 @@ from .._display import PALETTE
 from .._numbers import split_quantity, split_with_uncertainty
 from ..session import Analysis
 
-__all__ = ["Panel", "esc", "fmt", "number", "with_u", "figure", "stacked_figure", "fig_box", "table_html",
+__all__ = ["Panel", "esc", "fmt", "number", "with_u", "figure", "stacked_figure", "mac_heatmap", "fig_box", "table_html",
            "mode_rows", "mode_cells", "PANEL_STYLE", "side_by_side"]
 
 #: What a cell shows for a number that is not there (NaN, None).
@@ -94,6 +94,8 @@ def with_u(value: Any, u: Any, kind: str = "frequency_hz", *, unit: str | None =
     '1.5000 ± 0.0046 %'
     >>> with_u(12345.678, 153.0, unit="Hz")  # u >= 100: the larger unit, named in the cell
     '12.35 ± 0.15 kHz'
+    >>> with_u(572.3, float("inf"), unit="Hz"), with_u(572.3, 0.0, unit="Hz")
+    ('572.3 (u unbounded)', '572.3 (u = 0)')
     """
     if _missing(value):
         return NONE
@@ -103,6 +105,8 @@ def with_u(value: Any, u: Any, kind: str = "frequency_hz", *, unit: str | None =
         return _join(text, base, unit) + " (u n/a)"
     v_text, u_text, u_nit = split_with_uncertainty(float(value) * scale, float(u) * scale,
                                                    unit=base)
+    if u_text in ("∞", "0"):  # as the report writes it (export._cells.pm_cell)
+        return _join(v_text, u_nit, unit) + (" (u unbounded)" if u_text == "∞" else " (u = 0)")
     return _join(f"{v_text} ± {u_text}", u_nit, unit)
 
 
@@ -169,6 +173,17 @@ def figure(height: int = 320, **layout: Any) -> go.FigureWidget:
     if title is not None:
         fig.update_layout(title={"text": title, "x": 0.01, "xanchor": "left", "font": {"size": 14}})
     return fig
+
+
+def mac_heatmap(fig: go.FigureWidget) -> None:
+    """A MAC heat map with square cells (y scaled to x), the first row at the top."""
+    fig.add_heatmap(z=[[0]], zmin=0, zmax=1, colorscale=[list(s) for s in PALETTE.mac_scale],
+                    colorbar={"title": "MAC", "thickness": 12}, texttemplate="%{z:.2f}",
+                    xgap=1, ygap=1)
+    fig.update_layout(xaxis={"type": "category", "constrain": "domain"},
+                      yaxis={"type": "category", "scaleanchor": "x", "scaleratio": 1,
+                             "constrain": "domain", "autorange": "reversed"},
+                      margin={"l": 60, "r": 10, "t": 40, "b": 40})
 
 
 def stacked_figure(titles: tuple[str, ...], traces: Any, height: int, *,

@@ -15,7 +15,18 @@ from .._numbers import format_quantity
 from ..export._aside import ASIDE_TITLE, aside_rows
 from ..geometry import Geometry
 from ..session import Analysis
-from ._base import Panel, esc, fig_box, figure, mode_cells, number, side_by_side, table_html, with_u
+from ._base import (
+    Panel,
+    esc,
+    fig_box,
+    figure,
+    mac_heatmap,
+    mode_cells,
+    number,
+    side_by_side,
+    table_html,
+    with_u,
+)
 from .frf_views import ModelPairingView
 from .shape_motion import ShapeMotion
 
@@ -34,17 +45,6 @@ def _phase_text(deg: float) -> str:
         r += 360
     text = format_quantity(r, "phase_deg")
     return text if text.startswith("-") else f"+{text}"
-
-
-def _mac_heatmap(fig: Any) -> None:
-    """A MAC heat map with square cells (y scaled to x), the first row at the top."""
-    fig.add_heatmap(z=[[0]], zmin=0, zmax=1, colorscale=[list(s) for s in PALETTE.mac_scale],
-                    colorbar={"title": "MAC", "thickness": 12}, texttemplate="%{z:.2f}",
-                    xgap=1, ygap=1)
-    fig.update_layout(xaxis={"type": "category", "constrain": "domain"},
-                      yaxis={"type": "category", "scaleanchor": "x", "scaleratio": 1,
-                             "constrain": "domain", "autorange": "reversed"},
-                      margin={"l": 60, "r": 10, "t": 40, "b": 40})
 
 
 def _mac_labels(fig: Any, z: Any, labels: list[str]) -> None:
@@ -115,9 +115,9 @@ class TablePanel(Panel):
         self.mode.add_class("modalnb-table-mode")
         self.mode.observe(lambda ch: self._draw_mode(), "value")
         self.mac_fig = figure(380, title="MAC between modes")
-        _mac_heatmap(self.mac_fig)
+        mac_heatmap(self.mac_fig)
         self.hitmac_fig = figure(380, title="MAC between hits")
-        _mac_heatmap(self.hitmac_fig)
+        mac_heatmap(self.hitmac_fig)
         self.geometry = geometry
         self.motion = ShapeMotion(geometry)
         self.shape_fig = self.motion.fig
