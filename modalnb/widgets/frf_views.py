@@ -27,7 +27,7 @@ from .._errors import ModalnbError
 from .._numbers import format_quantity
 from ..frf_compare import frf_label
 from ..session import Analysis
-from ._base import esc, fig_box, figure, mac_heatmap, stacked_figure, table_html
+from ._base import esc, fig_box, figure, stacked_figure, table_html
 
 __all__ = ["CoherenceView", "FrfCheckView", "ModelPairingView", "model_pairing", "display_index"]
 
@@ -311,7 +311,8 @@ class ModelPairingView(_View):
         self.table = w.HTML()
         self.table.add_class("modalnb-pairing-table")
         self.fig = figure(340, title="MAC: test modes against model modes")
-        mac_heatmap(self.fig)  # the modal table's MAC maps' look: test mode 1 at the top
+        self.fig.add_heatmap(z=[[0]], zmin=0, zmax=1, colorscale=[list(s) for s in PALETTE.mac_scale],
+                             colorbar={"title": "MAC"}, texttemplate="%{z:.2f}")
         self.fig.update_layout(xaxis_title="model mode", yaxis_title="test mode")
         self._box([w.HTML("<b>Model against test.</b> The fitted modes paired with an analysis "
                           "model's modes by MAC over the common node-directions and by frequency."),
